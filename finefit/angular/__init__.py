@@ -1,0 +1,1 @@
+"""Angular algebra: Wigner symbols, Gaunt coefficients, determinant operators (pure)."""

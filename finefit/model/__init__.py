@@ -1,0 +1,1 @@
+"""The intermediate-coupling Hamiltonian model: bases, coefficient matrices, solutions."""

@@ -1,0 +1,363 @@
+"""Labelled bases in LS, jj and pair (JK) coupling, and the transformations between them.
+
+The LS basis is the model's own basis. jj and JK bases are joint eigenvectors of
+their coupling-tree Casimir operators (each subshell's j-groups and total J, the
+partial couplings in written order; for JK the core's L, S, J_c and K = J_c + l),
+diagonalised one after another inside the exact-J space of each configuration,
+exactly as for LS. Compositions in a scheme are the squared overlaps with its basis.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+
+from finefit.angular.determinants import one_body, two_body
+from finefit.angular.operators import (
+    OneBody,
+    j_subshell_operators,
+    lplus_terms,
+    lz_terms,
+    pairing_terms,
+    splus_terms,
+    sz_terms,
+)
+from finefit.model.basis import TIE_BREAK_WEIGHTS, Basis, LSState
+from finefit.model.solution import lande_g_ls
+from finefit.notation.labels import SubshellPart, format_jj, format_ls
+from finefit.notation.terms import term_symbol
+
+
+def ls_label(basis: Basis, state: LSState) -> str:
+    info = basis.configs[state.config]
+    parts = []
+    k = 0
+    for s in info.configuration.subshells:
+        if s.is_open and s.name in basis.shell_names:
+            t = state.subshell_terms[k]
+            k += 1
+            parts.append(SubshellPart(s.name, s.occupancy, s.l, t.L, t.S2, t.seniority, t.index))
+        else:
+            parts.append(SubshellPart(s.name, s.occupancy, s.l))
+    odd = info.configuration.parity == "odd"
+    return format_ls(parts, list(state.intermediates), state.L, state.S2, odd)
+
+
+def _core_text(basis: Basis, state: LSState) -> str:
+    """The LS label of a JK core (all subshells but the outer one) without its final term."""
+    info = basis.configs[state.config]
+    subs = [s for s in info.configuration.subshells]
+    outer = [s for s in subs if s.is_open][-1]
+    parts, k = [], 0
+    for s in subs:
+        if s is outer:
+            continue
+        if s.is_open and s.name in basis.shell_names:
+            t = state.subshell_terms[k]
+            k += 1
+            parts.append(SubshellPart(s.name, s.occupancy, s.l, t.L, t.S2, t.seniority, t.index))
+        else:
+            parts.append(SubshellPart(s.name, s.occupancy, s.l))
+    return parts, outer
+
+
+class _Casimirs:
+    """Projected operators on the exact-J vectors Q of one M_J = J block."""
+
+    def __init__(self, basis: Basis, j2: int, Q: np.ndarray) -> None:
+        self.basis = basis
+        self.block = basis.mj_block(j2)
+        self.up = basis.mj_block(j2 + 2)
+        self.Q = Q
+        self.so = basis.spin_orbitals
+
+    def vector_casimir(self, z_terms: OneBody, plus_terms: OneBody) -> np.ndarray:
+        """Q^T X^2 Q for X with X_z and X_+ given as one-body terms: X^2 = Xz^2 + Xz + X- X+."""
+        z = one_body(self.block, self.block, z_terms)
+        p = one_body(self.block, self.up, plus_terms)
+        ZQ = z @ self.Q
+        PQ = p @ self.Q
+        return ZQ.T @ ZQ + self.Q.T @ ZQ + PQ.T @ PQ
+
+    def one(self, terms: OneBody) -> np.ndarray:
+        return self.Q.T @ (one_body(self.block, self.block, terms) @ self.Q)
+
+    def two(self, terms) -> np.ndarray:
+        return self.Q.T @ (two_body(self.block, terms)[0] @ self.Q)
+
+
+def _sequential(ops: list[np.ndarray], n: int, tie: np.ndarray | None):
+    """Joint eigenvectors of commuting matrices, one after another; degenerate rest by ``tie``."""
+    R = np.eye(n)
+    groups = [np.arange(n)]
+    for op in ops:
+        new = []
+        for g in groups:
+            if g.size == 1:
+                new.append(g)
+                continue
+            sub = R[:, g].T @ op @ R[:, g]
+            w, U = np.linalg.eigh((sub + sub.T) / 2)
+            R[:, g] = R[:, g] @ U
+            start = 0
+            for i in range(1, g.size + 1):
+                if i == g.size or w[i] - w[i - 1] > 1e-6:
+                    new.append(g[start:i])
+                    start = i
+        groups = new
+    index = np.zeros(n, dtype=int)
+    for g in groups:
+        if g.size > 1:
+            if tie is not None:
+                sub = R[:, g].T @ tie @ R[:, g]
+                w, U = np.linalg.eigh((sub + sub.T) / 2)
+                R[:, g] = R[:, g] @ U
+            index[g] = np.arange(1, g.size + 1)
+    values = [np.einsum("ij,jk,ki->i", R.T, op, R) for op in ops]
+    return R, values, index
+
+
+def _two_j(x: float) -> int:
+    return int(round(-1.0 + np.sqrt(1.0 + 4.0 * max(x, 0.0))))
+
+
+@dataclass(eq=False)
+class BlockCoupling:
+    """Labels and basis changes of one J block."""
+
+    J2: int
+    ls_labels: list[str]
+    g_ls: np.ndarray
+    jj_labels: list[str]
+    jj_U: np.ndarray  # columns: jj basis states in LS coordinates
+    jk_labels: list[str]
+    jk_U: np.ndarray
+    has_jk: bool
+    state_config: np.ndarray
+
+    def scheme(self, name: str, v: np.ndarray) -> tuple[list[str], np.ndarray]:
+        key = name.lower()
+        if key == "ls":
+            return self.ls_labels, v
+        if key == "jj":
+            return self.jj_labels, self.jj_U.T @ v
+        if key in ("jk", "pair"):
+            return self.jk_labels, self.jk_U.T @ v
+        from finefit.errors import FinefitError
+
+        raise FinefitError(f"unknown coupling scheme {name!r}: use LS, jj or JK", name)
+
+    def scheme_configs(self, name: str, block) -> np.ndarray:
+        # all three bases are configuration-pure and keep the configuration order of rows
+        return self.state_config
+
+
+def coupling_data(model) -> dict[int, BlockCoupling]:
+    """Per-J labels and basis changes of a model (computed once, cached on the model)."""
+    cached = getattr(model, "_coupling_cache", None)
+    if cached is not None:
+        return cached
+    basis: Basis = model.basis
+    out = {}
+    for b in model.blocks:
+        jb = basis.j_blocks[b.J2]
+        states = [basis.ls_states[i] for i in b.state_index]
+        ls = [ls_label(basis, st) for st in states]
+        g = np.array([lande_g_ls(st.L, st.S2, b.J2) for st in states])
+        cas = _Casimirs(basis, b.J2, jb.vectors)
+        n = b.size
+        jj_U = np.zeros((n, n))
+        jk_U = np.eye(n)
+        jj_labels = [""] * n
+        jk_labels = list(ls)
+        has_jk = False
+        for x, info in enumerate(basis.configs):
+            rows = np.flatnonzero(b.state_config == x)
+            if rows.size == 0:
+                continue
+            sub = _Casimirs(basis, b.J2, jb.vectors[:, rows])
+            tie = _tie_operator(model, b, x, rows)
+            R, labels = _jj_basis(basis, info, sub, tie, b.J2)
+            jj_U[np.ix_(rows, rows)] = R
+            for r, lab in zip(rows, labels, strict=True):
+                jj_labels[r] = lab
+            res = _jk_basis(basis, info, sub, tie, [states[r] for r in rows], b.J2)
+            if res is not None:
+                has_jk = True
+                R, labels = res
+                jk_U[np.ix_(rows, rows)] = R
+                for r, lab in zip(rows, labels, strict=True):
+                    jk_labels[r] = lab
+        del cas
+        out[b.J2] = BlockCoupling(b.J2, ls, g, jj_labels, jj_U, jk_labels, jk_U, has_jk,
+                                  b.state_config)
+    model._coupling_cache = out
+    return out
+
+
+def _tie_operator(model, b, x: int, rows: np.ndarray) -> np.ndarray:
+    tie = np.zeros((rows.size, rows.size))
+    for pos, spec in enumerate(model.parameter_specs):
+        if spec.kind == "F" and len(spec.orbitals) == 1 and spec.configs == (x,):
+            hit = np.flatnonzero(b.param_index == pos)
+            if hit.size:
+                tie += TIE_BREAK_WEIGHTS.get(spec.k, 0.0) * b.C[hit[0]][np.ix_(rows, rows)]
+    return tie
+
+
+def _jj_basis(basis: Basis, info, cas: _Casimirs, tie: np.ndarray, J2: int):
+    so = basis.spin_orbitals
+    shells = list(info.open_shells)
+    ops, keys = [], []
+    for s in shells:
+        l = basis.shells[s][1]
+        if l > 0:
+            for j2 in (2 * l - 1, 2 * l + 1):
+                number, jz, jplus = j_subshell_operators(so, s, j2)
+                if j2 == 2 * l + 1:
+                    ops.append(cas.one(number))
+                    keys.append(("N+", s))
+                ops.append(cas.vector_casimir(jz, jplus))
+                keys.append(("Jg", s, j2))
+        ops.append(
+            cas.vector_casimir(
+                lz_terms(so, [s]) + sz_terms(so, [s]),
+                lplus_terms(so, [s]) + splus_terms(so, [s]),
+            )
+        )
+        keys.append(("J", s))
+    for k in range(1, len(shells) - 1):
+        sel = shells[: k + 1]
+        ops.append(
+            cas.vector_casimir(
+                lz_terms(so, sel) + sz_terms(so, sel), lplus_terms(so, sel) + splus_terms(so, sel)
+            )
+        )
+        keys.append(("Jc", k))
+    n = cas.Q.shape[1]
+    R, values, index = _sequential(ops, n, tie)
+    val = dict(zip(keys, values, strict=True))
+    labels = []
+    for i in range(n):
+        parts = []
+        for s in shells:
+            n_el = info.occupancy[s]
+            l = basis.shells[s][1]
+            if l == 0:
+                groups = [(1, n_el)]
+            else:
+                n_plus = int(round(val[("N+", s)][i]))
+                groups = [(g, c) for g, c in ((2 * l - 1, n_el - n_plus), (2 * l + 1, n_plus)) if c]
+            parts.append(
+                (basis.shell_names[s], n_el, l, groups, _two_j(val[("J", s)][i]),
+                 int(index[i]) if len(shells) == 1 else 0)
+            )
+        inter = [_two_j(val[("Jc", k)][i]) for k in range(1, len(shells) - 1)]
+        lab = format_jj(parts, inter)
+        if len(shells) > 1 and index[i]:
+            lab += "abcdefghijklmnopqrstuvwxyz"[index[i] - 1]
+        labels.append(lab)
+    return R, labels
+
+
+def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2: int):
+    shells = list(info.open_shells)
+    if len(shells) < 2 or info.occupancy[shells[-1]] != 1:
+        return None
+    so = basis.spin_orbitals
+    core = shells[:-1]
+    outer = shells[-1]
+    ops, keys = [], []
+    for pos, s in enumerate(core):
+        l = basis.shells[s][1]
+        n_el = info.occupancy[s]
+        if n_el in (1, 4 * l + 1):
+            continue
+        ops.append(cas.vector_casimir(lz_terms(so, [s]), lplus_terms(so, [s])))
+        keys.append(("L", pos))
+        ops.append(cas.vector_casimir(sz_terms(so, [s]), splus_terms(so, [s])))
+        keys.append(("S", pos))
+        if l >= 2:
+            ops.append(cas.two(pairing_terms(so, s)))
+            keys.append(("v", pos))
+    for k in range(1, len(core)):
+        sel = core[: k + 1]
+        ops.append(cas.vector_casimir(lz_terms(so, sel), lplus_terms(so, sel)))
+        keys.append(("Lc", k))
+        ops.append(cas.vector_casimir(sz_terms(so, sel), splus_terms(so, sel)))
+        keys.append(("Sc", k))
+    jc_z = lz_terms(so, core) + sz_terms(so, core)
+    jc_p = lplus_terms(so, core) + splus_terms(so, core)
+    ops.append(cas.vector_casimir(jc_z, jc_p))
+    keys.append(("Jc",))
+    ops.append(
+        cas.vector_casimir(jc_z + lz_terms(so, [outer]), jc_p + lplus_terms(so, [outer]))
+    )
+    keys.append(("K",))
+    n = cas.Q.shape[1]
+    R, values, index = _sequential(ops, n, tie)
+    val = dict(zip(keys, values, strict=True))
+    from finefit.model.basis import _casimir_value, _casimir_value2, _p_seniority, _seniority
+    from finefit.notation.labels import SubshellPart as Part
+    from finefit.notation.labels import format_ls as fmt
+
+    labels = []
+    outer_sub = None
+    for s in info.configuration.subshells:
+        if s.is_open:
+            outer_sub = s
+    for i in range(n):
+        parts = []
+        pos = 0
+        inter = []
+        for s in info.configuration.subshells:
+            if s is outer_sub:
+                continue
+            if s.is_open and s.name in basis.shell_names:
+                l, n_el = s.l, s.occupancy
+                if n_el in (1, 4 * l + 1):
+                    parts.append(Part(s.name, n_el, l, l, 1, 1, 0))
+                else:
+                    Ls = _casimir_value(val[("L", pos)][i])
+                    S2s = _casimir_value2(val[("S", pos)][i])
+                    v = _seniority(val[("v", pos)][i], l, n_el) if l >= 2 else _p_seniority(Ls, S2s)
+                    parts.append(Part(s.name, n_el, l, Ls, S2s, v, 0))
+                pos += 1
+            else:
+                parts.append(Part(s.name, s.occupancy, s.l))
+        for k in range(1, len(core)):
+            inter.append((_casimir_value(val[("Lc", k)][i]), _casimir_value2(val[("Sc", k)][i])))
+        if len(core) == 1:
+            p = next(p for p in parts if p.L is not None)
+            cL, cS2 = p.L, p.S2
+        else:
+            cL, cS2 = inter[-1]
+            inter = inter[:-1]
+        core_odd = sum(s.l * s.occupancy for s in info.configuration.subshells
+                       if s is not outer_sub) % 2 == 1
+        text = fmt(parts, inter, cL, cS2, core_odd)
+        head, _, final = text.rpartition(" ")
+        # core term with its J in parentheses, then the outer electron and [K]
+        from finefit.notation.jvalues import format_angular
+
+        jc2 = _two_j(val[("Jc",)][i])
+        k2 = _two_j(val[("K",)][i])
+        core_term = final if len(core) == 1 else term_symbol(cL, cS2, core_odd)
+        if len(core) == 1:
+            head_text = head
+        else:
+            head_text = head
+        odd = info.configuration.parity == "odd"
+        lab = (
+            f"{head_text}({core_term}{format_angular(jc2)}){outer_sub.name} 2[{format_angular(k2)}]"
+            + ("°" if odd else "")
+        )
+        if index[i]:
+            lab += "abcdefghijklmnopqrstuvwxyz"[index[i] - 1]
+        labels.append(lab)
+    return R, labels
+
+
+__all__ = ["coupling_data", "ls_label", "BlockCoupling", "sp"]
