@@ -30,9 +30,7 @@ class SpinOrbitals:
     ms2: np.ndarray
 
     @classmethod
-    def for_shells(
-        cls, shell_l: list[int], permutation: np.ndarray | None = None
-    ) -> SpinOrbitals:
+    def for_shells(cls, shell_l: list[int], permutation: np.ndarray | None = None) -> SpinOrbitals:
         """Spin-orbitals of the given subshells (l values), shell-major order.
 
         ``permutation`` reorders the spin-orbitals (used by tests to show that
@@ -83,9 +81,7 @@ def configuration_determinants(so: SpinOrbitals, occupancies: list[int]) -> np.n
 
 def quantum_numbers(dets: np.ndarray, so: SpinOrbitals) -> tuple[np.ndarray, np.ndarray]:
     """M_L and 2 M_S of each determinant."""
-    bits = ((dets[:, None] >> np.arange(so.count, dtype=np.uint64)) & np.uint64(1)).astype(
-        np.int64
-    )
+    bits = ((dets[:, None] >> np.arange(so.count, dtype=np.uint64)) & np.uint64(1)).astype(np.int64)
     return bits @ so.ml, bits @ so.ms2
 
 
@@ -222,7 +218,5 @@ def two_body(block: DeterminantBlock, terms: TwoBodyTerms) -> list[sp.csr_matrix
     for t in range(n_types):
         w = terms.weights[term_a, t] * sign_a
         nz = w != 0.0
-        out.append(
-            sp.csr_matrix((w[nz], (rows_a[nz], cols_a[nz])), shape=(block.size, block.size))
-        )
+        out.append(sp.csr_matrix((w[nz], (rows_a[nz], cols_a[nz])), shape=(block.size, block.size)))
     return out

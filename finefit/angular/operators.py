@@ -152,7 +152,9 @@ def coulomb_terms(so: SpinOrbitals) -> tuple[TwoBodyTerms, list[IntegralClass]]:
 
 
 def pairing_terms(so: SpinOrbitals, shell: int) -> TwoBodyTerms:
-    """The seniority (quasi-spin) operator A+A of one subshell, A+ = sum_m (-1)^(l-m) a+_{m+} a+_{-m-}.
+    """The seniority (quasi-spin) operator A+A of one subshell.
+
+    A+ = sum_m (-1)^(l-m) a+_{m up} a+_{-m down} creates an L = 0, S = 0 pair.
 
     Its eigenvalue on a state of seniority v with N electrons is Q(Q+1) - Qz(Qz-1),
     Q = (2l+1-v)/2, Qz = (N-2l-1)/2 (Racah 1943; Judd, Operator Techniques, 1963).
@@ -163,12 +165,11 @@ def pairing_terms(so: SpinOrbitals, shell: int) -> TwoBodyTerms:
     for m in range(-l, l + 1):
         for mp in range(-l, l + 1):
             phase = (-1) ** ((l - m) + (l - mp))
-            # a+_{m up} a+_{-m down} a_{-m' down} a_{m' up}  ->  a=m up, b=-m down, c=m' up, d=-m' down
+            # a+_{m up} a+_{-m down} a_{-m' down} a_{m' up}:
+            # a = m up, b = -m down, c = m' up, d = -m' down
             rows.append((idx[(m, 1)], idx[(-m, -1)], idx[(mp, 1)], idx[(-mp, -1)], phase))
     arr = np.array(rows, dtype=np.int64)
-    return normalise_two_body(
-        arr[:, 0], arr[:, 1], arr[:, 2], arr[:, 3], arr[:, 4:5].astype(float)
-    )
+    return normalise_two_body(arr[:, 0], arr[:, 1], arr[:, 2], arr[:, 3], arr[:, 4:5].astype(float))
 
 
 def lz_terms(so: SpinOrbitals, shells: list[int]) -> OneBody:
@@ -182,9 +183,7 @@ def sz_terms(so: SpinOrbitals, shells: list[int]) -> OneBody:
 
 
 def _orbital_index(so: SpinOrbitals) -> dict[tuple[int, int, int], int]:
-    return {
-        (int(so.shell[i]), int(so.ml[i]), int(so.ms2[i])): int(i) for i in range(so.count)
-    }
+    return {(int(so.shell[i]), int(so.ml[i]), int(so.ms2[i])): int(i) for i in range(so.count)}
 
 
 def lplus_terms(so: SpinOrbitals, shells: list[int]) -> OneBody:
@@ -204,9 +203,7 @@ def splus_terms(so: SpinOrbitals, shells: list[int]) -> OneBody:
     """Spin raising operator S+ restricted to the given subshells."""
     idx = _orbital_index(so)
     return [
-        (idx[(s, ml, 1)], i, 1.0)
-        for (s, ml, ms2), i in idx.items()
-        if s in shells and ms2 == -1
+        (idx[(s, ml, 1)], i, 1.0) for (s, ml, ms2), i in idx.items() if s in shells and ms2 == -1
     ]
 
 
@@ -250,9 +247,7 @@ def j_subshell_transform(l: int) -> dict[tuple[int, int], list[tuple[int, int, f
     return out
 
 
-def j_subshell_operators(
-    so: SpinOrbitals, shell: int, j2: int
-) -> tuple[OneBody, OneBody, OneBody]:
+def j_subshell_operators(so: SpinOrbitals, shell: int, j2: int) -> tuple[OneBody, OneBody, OneBody]:
     """Number, J_z and J_+ of the electrons of one subshell in its j = l -+ 1/2 part.
 
     Built as P_j o P_j with P_j the projector on the j orbitals (in the m_l m_s basis),
@@ -276,10 +271,6 @@ def j_subshell_operators(
     number = outer({(m, m): 1.0 for m in states})
     jz = outer({(m, m): m / 2.0 for m in states})
     jplus = outer(
-        {
-            (m + 2, m): 0.5 * np.sqrt(j2 * (j2 + 2) - m * (m + 2))
-            for m in states
-            if m + 2 in states
-        }
+        {(m + 2, m): 0.5 * np.sqrt(j2 * (j2 + 2) - m * (m + 2)) for m in states if m + 2 in states}
     )
     return number, jz, jplus

@@ -8,7 +8,7 @@ angular momenta so that half-integers stay exact integers.
 
 from __future__ import annotations
 
-from functools import lru_cache
+from functools import cache
 
 import numpy as np
 from sympy import Rational
@@ -19,29 +19,25 @@ def _half(x2: int) -> Rational:
     return Rational(x2, 2)
 
 
-@lru_cache(maxsize=None)
+@cache
 def three_j2(j1: int, j2: int, j3: int, m1: int, m2: int, m3: int) -> float:
     """Wigner 3j symbol (j1 j2 j3; m1 m2 m3), all arguments doubled."""
     if m1 + m2 + m3 != 0:
         return 0.0
-    return float(
-        wigner_3j(_half(j1), _half(j2), _half(j3), _half(m1), _half(m2), _half(m3))
-    )
+    return float(wigner_3j(_half(j1), _half(j2), _half(j3), _half(m1), _half(m2), _half(m3)))
 
 
-@lru_cache(maxsize=None)
+@cache
 def clebsch_gordan2(j1: int, m1: int, j2: int, m2: int, j: int, m: int) -> float:
     """<j1 m1 j2 m2 | j m> (Condon-Shortley phase), all arguments doubled."""
     if m1 + m2 != m:
         return 0.0
     if abs(m1) > j1 or abs(m2) > j2 or abs(m) > j:
         return 0.0
-    return float(
-        clebsch_gordan(_half(j1), _half(j2), _half(j), _half(m1), _half(m2), _half(m))
-    )
+    return float(clebsch_gordan(_half(j1), _half(j2), _half(j), _half(m1), _half(m2), _half(m)))
 
 
-@lru_cache(maxsize=None)
+@cache
 def gaunt(l: int, m: int, k: int, lp: int, mp: int) -> float:
     """Gaunt coefficient c^k(l m; l' m') = <l m|C^k_{m-m'}|l' m'>.
 
@@ -63,7 +59,7 @@ def gaunt(l: int, m: int, k: int, lp: int, mp: int) -> float:
     )
 
 
-@lru_cache(maxsize=None)
+@cache
 def gaunt_table(l: int, k: int, lp: int) -> np.ndarray:
     """Array c[m + l, m' + lp] of c^k(l m; l' m') for all m, m'."""
     table = np.zeros((2 * l + 1, 2 * lp + 1))

@@ -200,13 +200,13 @@ class Basis:
     def block(self, ml: int, ms2: int) -> DeterminantBlock:
         b = self.blocks.get((ml, ms2))
         if b is None:
-            b = DeterminantBlock(
-                ml, ms2, np.zeros(0, dtype=np.uint64), np.zeros(0, dtype=np.int64)
-            )
+            b = DeterminantBlock(ml, ms2, np.zeros(0, dtype=np.uint64), np.zeros(0, dtype=np.int64))
             self.blocks[(ml, ms2)] = b
         return b
 
-    def operator(self, name: str, src: tuple[int, int], tgt: tuple[int, int], terms) -> sp.csr_matrix:
+    def operator(
+        self, name: str, src: tuple[int, int], tgt: tuple[int, int], terms
+    ) -> sp.csr_matrix:
         """A cached one-body operator between two (M_L, 2M_S) blocks."""
         key = (name, src, tgt)
         if key not in self._op_cache:
@@ -240,12 +240,11 @@ class Basis:
         return V.T @ ((sz * (sz + 1))[:, None] * V) + W.T @ W
 
     def _build_terms(self) -> None:
-        so = self.spin_orbitals
         self.term_groups: dict[tuple[int, int], TermGroup] = {}
         self.ls_states: list[LSState] = []
         self._group_of_state: list[tuple[tuple[int, int], int]] = []
         pairing_cache: dict[int, object] = {}
-        for (L, S2) in sorted(self.blocks):
+        for L, S2 in sorted(self.blocks):
             if L < 0 or S2 < 0:
                 continue
             blk = self.blocks[(L, S2)]
@@ -345,8 +344,10 @@ class Basis:
             for pos, s in enumerate(shells):
                 for cls_i, cls in enumerate(self.integral_classes):
                     if cls.pair1 == (s, s) and cls.pair2 == (s, s) and cls.k > 0:
-                        tie += TIE_BREAK_WEIGHTS.get(cls.k, 0.0) * (1.0 + 0.1 * pos) * (
-                            V.T @ (coul[cls_i] @ V)
+                        tie += (
+                            TIE_BREAK_WEIGHTS.get(cls.k, 0.0)
+                            * (1.0 + 0.1 * pos)
+                            * (V.T @ (coul[cls_i] @ V))
                         )
             sub = R[:, g].T @ tie @ R[:, g]
             w, U = np.linalg.eigh((sub + sub.T) / 2)

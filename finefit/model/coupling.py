@@ -191,8 +191,9 @@ def coupling_data(model) -> dict[int, BlockCoupling]:
                 for r, lab in zip(rows, labels, strict=True):
                     jk_labels[r] = lab
         del cas
-        out[b.J2] = BlockCoupling(b.J2, ls, g, jj_labels, jj_U, jk_labels, jk_U, has_jk,
-                                  b.state_config)
+        out[b.J2] = BlockCoupling(
+            b.J2, ls, g, jj_labels, jj_U, jk_labels, jk_U, has_jk, b.state_config
+        )
     model._coupling_cache = out
     return out
 
@@ -251,8 +252,14 @@ def _jj_basis(basis: Basis, info, cas: _Casimirs, tie: np.ndarray, J2: int):
                 n_plus = int(round(val[("N+", s)][i]))
                 groups = [(g, c) for g, c in ((2 * l - 1, n_el - n_plus), (2 * l + 1, n_plus)) if c]
             parts.append(
-                (basis.shell_names[s], n_el, l, groups, _two_j(val[("J", s)][i]),
-                 int(index[i]) if len(shells) == 1 else 0)
+                (
+                    basis.shell_names[s],
+                    n_el,
+                    l,
+                    groups,
+                    _two_j(val[("J", s)][i]),
+                    int(index[i]) if len(shells) == 1 else 0,
+                )
             )
         inter = [_two_j(val[("Jc", k)][i]) for k in range(1, len(shells) - 1)]
         lab = format_jj(parts, inter)
@@ -292,9 +299,7 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
     jc_p = lplus_terms(so, core) + splus_terms(so, core)
     ops.append(cas.vector_casimir(jc_z, jc_p))
     keys.append(("Jc",))
-    ops.append(
-        cas.vector_casimir(jc_z + lz_terms(so, [outer]), jc_p + lplus_terms(so, [outer]))
-    )
+    ops.append(cas.vector_casimir(jc_z + lz_terms(so, [outer]), jc_p + lplus_terms(so, [outer])))
     keys.append(("K",))
     n = cas.Q.shape[1]
     R, values, index = _sequential(ops, n, tie)
@@ -335,8 +340,10 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
         else:
             cL, cS2 = inter[-1]
             inter = inter[:-1]
-        core_odd = sum(s.l * s.occupancy for s in info.configuration.subshells
-                       if s is not outer_sub) % 2 == 1
+        core_odd = (
+            sum(s.l * s.occupancy for s in info.configuration.subshells if s is not outer_sub) % 2
+            == 1
+        )
         text = fmt(parts, inter, cL, cS2, core_odd)
         head, _, final = text.rpartition(" ")
         # core term with its J in parentheses, then the outer electron and [K]

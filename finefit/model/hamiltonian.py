@@ -44,6 +44,9 @@ class OperatorBlock:
     state_index: np.ndarray  # LS states of the basis, in row order
     state_config: np.ndarray
 
+    def __post_init__(self) -> None:
+        self.C_flat = self.C.reshape(self.C.shape[0], -1)
+
     @property
     def J(self) -> float:
         return self.J2 / 2.0
@@ -118,8 +121,12 @@ class Model:
                         if x == y:
                             short, kind, orbs = intra_name(cls, self._written_order(x), names)
                             spec = ParameterSpec(
-                                qualified(self.configurations[x], short), short, kind, cls.k,
-                                orbs, (x,),
+                                qualified(self.configurations[x], short),
+                                short,
+                                kind,
+                                cls.k,
+                                orbs,
+                                (x,),
                             )
                         else:
                             mat[np.ix_(cfg_rows[y], cfg_rows[x])] = sub.T
@@ -138,7 +145,11 @@ class Model:
                                 qualified_pair(
                                     self.configurations[x], self.configurations[y], short
                                 ),
-                                short, "R", cls.k, orbs, (x, y),
+                                short,
+                                "R",
+                                cls.k,
+                                orbs,
+                                (x, y),
                             )
                         prev = matrices.get(spec, {}).get(j2)
                         add(spec, j2, mat if prev is None else prev + mat)
@@ -160,7 +171,11 @@ class Model:
                     mat[np.ix_(r, r)] = full[np.ix_(r, r)]
                     spec = ParameterSpec(
                         qualified(self.configurations[x], f"zeta({names[s]})"),
-                        f"zeta({names[s]})", "zeta", 1, (names[s],), (x,),
+                        f"zeta({names[s]})",
+                        "zeta",
+                        1,
+                        (names[s],),
+                        (x,),
                     )
                     add(spec, j2, mat)
             # Trees correction alpha L(L+1) of each l^N subshell
@@ -182,7 +197,11 @@ class Model:
                             ]
                     spec = ParameterSpec(
                         qualified(self.configurations[x], f"alpha({names[s]})"),
-                        f"alpha({names[s]})", "alpha", 0, (names[s],), (x,),
+                        f"alpha({names[s]})",
+                        "alpha",
+                        0,
+                        (names[s],),
+                        (x,),
                     )
                     add(spec, j2, mat)
             for x in range(n_cfg):
@@ -202,9 +221,12 @@ class Model:
             x = spec.configs[0]
             trace = sum((j2 + 1) * np.trace(m) for j2, m in per_j.items())
             avg = trace / basis.configs[x].n_determinants
-            for j2, m in per_j.items():
-                cfg = block_meta[j2][1]
+            # every J block of the configuration gets the shift, also where C_p was zero
+            for j2, (states, cfg) in block_meta.items():
                 r = np.flatnonzero(cfg == x)
+                if r.size == 0:
+                    continue
+                m = per_j.setdefault(j2, np.zeros((states.size, states.size)))
                 m[r, r] -= avg
             if max(np.abs(m).max() for m in per_j.values()) < 1e-9:
                 del matrices[spec]
@@ -217,12 +239,15 @@ class Model:
         for j2 in sorted(basis.j_blocks):
             states, cfg = block_meta[j2]
             local = [i for i, s in enumerate(specs) if j2 in matrices[s]]
-            C = np.stack([matrices[specs[i]][j2] for i in local]) if local else np.zeros(
-                (0, states.size, states.size)
+            C = (
+                np.stack([matrices[specs[i]][j2] for i in local])
+                if local
+                else np.zeros((0, states.size, states.size))
             )
             self.blocks.append(
-                OperatorBlock(j2, np.array(local, dtype=np.int64), np.ascontiguousarray(C),
-                              states, cfg)
+                OperatorBlock(
+                    j2, np.array(local, dtype=np.int64), np.ascontiguousarray(C), states, cfg
+                )
             )
         self._block_of_j2 = {b.J2: b for b in self.blocks}
 
@@ -294,7 +319,7 @@ class Model:
     def hamiltonian(self, values: Mapping[str, float] | np.ndarray, J: float | str) -> np.ndarray:
         b = self.block(J)
         x = self.vector(values)
-        return np.tensordot(x[b.param_index], b.C, axes=1)
+        return (x[b.param_index] @ b.C_flat).reshape(b.size, b.size)
 
     def solve(self, values: Mapping[str, float] | np.ndarray, derivatives: bool = True):
         """Eigen-solution of every J block; see :class:`finefit.model.solution.Solution`."""
@@ -303,24 +328,36 @@ class Model:
         x = self.vector(values)
         eig = []
         for b in self.blocks:
-            H = np.tensordot(x[b.param_index], b.C, axes=1)
-            w, V = np.linalg.eigh(H)
-            D = None
-            if derivatives and b.param_index.size:
-                CV = b.C @ V
-                D = np.einsum("ji,pji->ip", V, CV)
+            w, V, D = _solve_block(b, x, derivatives)
             eig.append((w, V, D))
         return Solution(self, x, eig)
 
-    def energies_and_jacobian(self, x: np.ndarray) -> tuple[list[np.ndarray], list[np.ndarray],
-                                                            list[np.ndarray]]:
-        """Bare eigenvalues, eigenvectors and Hellmann-Feynman derivatives per block (fast path)."""
+    def energies_and_jacobian(
+        self, x: np.ndarray
+    ) -> tuple[list[np.ndarray], list[np.ndarray], list[np.ndarray]]:
+        """Bare eigenvalues, eigenvectors and Hellmann-Feynman derivatives per block (fast path).
+
+        The derivative block D[i, k] is dE_i/dx_{param_index[k]}.
+        """
         ws, vs, ds = [], [], []
         for b in self.blocks:
-            H = np.tensordot(x[b.param_index], b.C, axes=1)
-            w, V = np.linalg.eigh(H)
-            CV = b.C @ V
-            ds.append(np.einsum("ji,pji->ip", V, CV))
+            w, V, D = _solve_block(b, x, True)
             ws.append(w)
             vs.append(V)
+            ds.append(D)
         return ws, vs, ds
+
+
+def _solve_block(b: OperatorBlock, x: np.ndarray, derivatives: bool):
+    n = b.size
+    H = (x[b.param_index] @ b.C_flat).reshape(n, n)
+    w, V = np.linalg.eigh(H)
+    if not derivatives:
+        return w, V, None
+    if n <= 64:
+        # dE_i/dx_p = sum_jk V_ji C_pjk V_ki as one product with the outer products (small
+        # blocks: fewer numpy calls matter more than flops)
+        VV = (V[:, None, :] * V[None, :, :]).reshape(n * n, n)
+        return w, V, (b.C_flat @ VV).T
+    CV = b.C @ V
+    return w, V, np.einsum("ji,pji->ip", V, CV)

@@ -107,4 +107,12 @@ def sort_key(spec: ParameterSpec, written: dict[int, list[str]]) -> tuple:
     cfg = spec.configs
     order = written[cfg[0]]
     orb_pos = tuple(order.index(o) if o in order else 99 for o in spec.orbitals)
-    return (len(cfg) > 1, cfg, KIND_ORDER[spec.kind], len(spec.orbitals), orb_pos, spec.k, spec.name)
+    return (
+        len(cfg) > 1,
+        cfg,
+        KIND_ORDER[spec.kind],
+        len(spec.orbitals),
+        orb_pos,
+        spec.k,
+        spec.name,
+    )

@@ -106,8 +106,9 @@ class Solution:
             out[b.param_index] = D[level.position]
         return out
 
-    def composition(self, level: Level, scheme: str = "LS", top: int | None = None
-                    ) -> list[Component]:
+    def composition(
+        self, level: Level, scheme: str = "LS", top: int | None = None
+    ) -> list[Component]:
         """Percentage composition of a level in ``LS``, ``jj`` or ``JK`` coupling, largest first."""
         cd = self._coupling[level.block]
         v = self.eigenvector(level)

@@ -118,8 +118,6 @@ def parse_configuration(text: str | Configuration) -> Configuration:
     seen: set[str] = set()
     for s, tok in zip(subshells, tokens, strict=True):
         if s.name in seen:
-            raise FinefitError(
-                f"subshell {s.name} appears twice in configuration {text!r}", tok
-            )
+            raise FinefitError(f"subshell {s.name} appears twice in configuration {text!r}", tok)
         seen.add(s.name)
     return Configuration(tuple(subshells))

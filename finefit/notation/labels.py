@@ -1,7 +1,8 @@
 """Level labels in LS, jj and pair (JK) coupling, written the trade's way.
 
-LS:  ``3d6(5D)4s 6D``, ``2p5(2P°)3p 3D``, ``3d5(6S)4s(7S)4p 8P°``: each open subshell
-     but the last carries its own term in parentheses when that term is not implied
+LS:  ``3d6(5D)4s 6D``, ``2p5(2P°)3p 3D``, ``3d5(6S)4s(7S)4p 8P°``, ``2p 3p 1S``: the
+     first open subshell carries its term in parentheses unless it is a single
+     electron; later open subshells carry their own term when it is not implied
      (one electron or one hole); from the second open subshell on, the term coupled
      so far follows in parentheses. A subshell term that occurs more than once in
      l^N carries its seniority as a trailing digit (``3d3(2D1)``, ``3d3(2D3)``); where
@@ -73,7 +74,7 @@ def format_ls(
             k = open_pos.index(i)
             unique = p.occupancy in (1, 4 * p.l + 1)
             last = k == len(open_pos) - 1
-            if k == 0 and not last:
+            if k == 0 and not last and p.occupancy != 1:
                 text += f"({subshell_term_text(p.l, p.occupancy, p.L, p.S2, p.seniority, p.index)})"
             elif k > 0:
                 if not unique:
@@ -113,9 +114,7 @@ def format_jj(
         if n in (1, 4 * l + 1):
             text += f"({format_angular(j2_sub)})"
         else:
-            occ = " ".join(
-                format_angular(j2) + (f"^{nj}" if nj > 1 else "") for j2, nj in groups
-            )
+            occ = " ".join(format_angular(j2) + (f"^{nj}" if nj > 1 else "") for j2, nj in groups)
             suffix = _INDEX_LETTERS[index - 1] if index else ""
             text += f"({occ};{format_angular(j2_sub)}{suffix})"
         if 0 < k < n_open - 1:
@@ -159,9 +158,7 @@ def check_ls_label(text: str) -> str:
         raise FinefitError(f"label {text!r} has unbalanced parentheses", text)
     head, _, final = t.rpartition(" ")
     if not head:
-        raise FinefitError(
-            f"label {text!r} has no final term: write e.g. '3d6(5D)4s 6D'", text
-        )
+        raise FinefitError(f"label {text!r} has no final term: write e.g. '3d6(5D)4s 6D'", text)
     pos = 0
     body = head.replace(" ", "")
     while pos < len(body):

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import itertools
 import re
-from functools import lru_cache
+from functools import cache
 
 from finefit.errors import FinefitError
 
@@ -34,9 +34,9 @@ def parse_term(text: str) -> tuple[int, int, bool]:
     return L_LETTERS.index(m.group(2)), mult - 1, m.group(3) is not None
 
 
-@lru_cache(maxsize=None)
+@cache
 def subshell_term_counts(l: int, n: int) -> dict[tuple[int, int], int]:
-    """How often each term (L, 2S) occurs in l^N, from counting M_L, M_S (Condon & Shortley §7.4)."""
+    """How often each term (L, 2S) occurs in l^N, by counting M_L, M_S (Condon & Shortley §7.4)."""
     orbitals = [(ml, ms2) for ml in range(-l, l + 1) for ms2 in (1, -1)]
     counts: dict[tuple[int, int], int] = {}
     for combo in itertools.combinations(orbitals, n):

@@ -1,0 +1,95 @@
+"""Engine benchmarks: build times, evaluation cost relative to bare eigh, a large case.
+
+Run: python benchmarks/bench_engine.py [--skip-large]
+Prints figures and ratios measured in this one run (the machines are shared and
+noisy; read ratios, not absolute numbers).
+"""
+
+from __future__ import annotations
+
+import argparse
+import resource
+import sys
+import time
+
+import numpy as np
+
+from finefit import Model
+
+
+def best_of(fn, repeat: int = 5, number: int = 1) -> float:
+    times = []
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        for _ in range(number):
+            fn()
+        times.append((time.perf_counter() - t0) / number)
+    return min(times)
+
+
+def typical_values(model: Model, seed: int = 1) -> np.ndarray:
+    rng = np.random.default_rng(seed)
+    x = np.zeros(len(model.parameters))
+    for i, spec in enumerate(model.parameter_specs):
+        x[i] = {
+            "Eav": rng.uniform(0, 20000),
+            "F": rng.uniform(40000, 90000),
+            "G": rng.uniform(2000, 10000),
+            "R": rng.uniform(1000, 5000),
+            "zeta": rng.uniform(300, 600),
+            "alpha": rng.uniform(30, 80),
+        }[spec.kind]
+    return x
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__)
+    ap.add_argument("--skip-large", action="store_true", help="skip the 4f6 5d build")
+    args = ap.parse_args()
+    print("== build: all coefficient matrices and J blocks (target < 2 s each) ==")
+    cases = [["3d6 4s", "3d7", "3d5 4s2"], ["4f3"], ["4f2 5d"]]
+    models = {}
+    for cfgs in cases:
+        t0 = time.perf_counter()
+        m = Model(cfgs)
+        dt = time.perf_counter() - t0
+        models[" + ".join(cfgs)] = m
+        print(
+            f"{' + '.join(cfgs):24s} {dt:6.3f} s   {m.n_determinants:6d} determinants, "
+            f"{sum(m.block_dimensions.values()):4d} levels, {len(m.parameters):3d} parameters, "
+            f"ratio to target {dt / 2.0:.2f}"
+        )
+    print("\n== one evaluation: all J blocks solved + full Jacobian vs bare eigh (target <= 2x) ==")
+    for name, m in models.items():
+        x = typical_values(m)
+        Hs = [np.tensordot(x[b.param_index], b.C, axes=1) for b in m.blocks]
+
+        def bare(Hs=Hs):
+            for H in Hs:
+                np.linalg.eigh(H)
+
+        def full(m=m, x=x):
+            m.energies_and_jacobian(x)
+
+        t_bare = best_of(bare, repeat=7, number=20)
+        t_full = best_of(full, repeat=7, number=20)
+        print(
+            f"{name:24s} eigh {t_bare * 1e3:8.3f} ms   evaluation {t_full * 1e3:8.3f} ms   "
+            f"ratio {t_full / t_bare:5.2f}"
+        )
+    if not args.skip_large:
+        print("\n== large case: 4f6 5d (30 030 determinants; target < 60 s and < 4 GB) ==")
+        t0 = time.perf_counter()
+        m = Model(["4f6 5d"])
+        dt = time.perf_counter() - t0
+        rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+        print(
+            f"4f6 5d build {dt:6.2f} s (ratio to target {dt / 60:.2f}), peak RSS {rss:7.1f} MB "
+            f"(ratio to target {rss / 4096:.3f}); "
+            f"largest J block {max(m.block_dimensions.values())}"
+        )
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,21 @@
+"""finefit: term analysis of atomic spectra.
+
+Fit the radial parameters of an intermediate-coupling Hamiltonian to observed
+energy levels, read the eigenvector compositions, and predict missing levels.
+"""
+
+from finefit.errors import FinefitError
+from finefit.model.estimates import hydrogenic_zeta, lande_zeta
+from finefit.model.hamiltonian import Model
+from finefit.model.solution import Level, Solution
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "FinefitError",
+    "Level",
+    "Model",
+    "Solution",
+    "hydrogenic_zeta",
+    "lande_zeta",
+]

@@ -1,0 +1,66 @@
+"""Starting values that need no ab initio run: hydrogenic and Landé spin-orbit estimates.
+
+- Hydrogenic: zeta_nl = alpha^2 R Z^4 / (n^3 l (l + 1/2) (l + 1)) for a bare
+  charge Z (Bethe & Salpeter 1957, §13; Condon & Shortley 1935, §5.4).
+- Landé's semi-empirical formula: zeta_nl = alpha^2 R Z_i^2 Z_o^2 / (n*^3 l (l + 1/2) (l + 1)),
+  with Z_o the charge seen outside (ion charge + 1), Z_i the effective inner
+  charge and n* the effective quantum number of the electron from its binding
+  energy E_b = R Z_o^2 / n*^2 (Landé 1924; Kuhn, Atomic Spectra, 1969, §III.?; the
+  doublet splitting (l + 1/2) zeta is Landé's alpha^2 R Z_i^2 Z_o^2 / (n*^3 l (l + 1))).
+All in cm^-1; constants from scipy.constants (CODATA).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.constants import Rydberg, fine_structure
+
+from finefit.errors import FinefitError
+
+RYDBERG_CM = Rydberg / 100.0  # R_inf in cm^-1
+ALPHA2_RYDBERG_CM = fine_structure**2 * RYDBERG_CM
+
+# Common-practice inner screening for Landé's formula: Z_i = Z - s with s = 0 for
+# s electrons (no spin-orbit), 4 for p, 11 for d and 30 for f (Condon & Shortley
+# 1935; Kuhn 1969; a rough rule of thumb, from memory).
+LANDE_INNER_SCREENING = {1: 4.0, 2: 11.0, 3: 30.0}
+
+
+def _check_l(n: float, l: int) -> None:
+    if l < 1:
+        raise FinefitError("spin-orbit parameters exist only for l >= 1", "l")
+    if n <= 0:
+        raise FinefitError("the principal or effective quantum number must be positive", "n")
+
+
+def hydrogenic_zeta(n: int, l: int, Z: float) -> float:
+    """zeta_nl of a one-electron ion of nuclear charge Z, in cm^-1."""
+    _check_l(n, l)
+    return ALPHA2_RYDBERG_CM * Z**4 / (n**3 * l * (l + 0.5) * (l + 1))
+
+
+def effective_quantum_number(binding_energy: float, ion_charge: int) -> float:
+    """n* from E_b = R Z_o^2 / n*^2, Z_o = ion charge + 1, E_b in cm^-1 (positive)."""
+    if binding_energy <= 0:
+        raise FinefitError(
+            "the binding energy (ionization limit minus level energy) must be positive",
+            "binding_energy",
+        )
+    z_out = ion_charge + 1
+    return float(z_out * np.sqrt(RYDBERG_CM / binding_energy))
+
+
+def lande_zeta(
+    l: int,
+    Z: int,
+    ion_charge: int,
+    binding_energy: float,
+    inner_screening: float | None = None,
+) -> float:
+    """Landé's estimate of zeta_nl (cm^-1) from a level's binding energy below the limit."""
+    n_star = effective_quantum_number(binding_energy, ion_charge)
+    _check_l(n_star, l)
+    s = LANDE_INNER_SCREENING.get(l, 30.0) if inner_screening is None else inner_screening
+    z_in = max(Z - s, 1.0)
+    z_out = ion_charge + 1
+    return ALPHA2_RYDBERG_CM * z_in**2 * z_out**2 / (n_star**3 * l * (l + 0.5) * (l + 1))
