@@ -9,11 +9,11 @@ and zero for J odd or a broken triangle.
 from __future__ import annotations
 
 from fractions import Fraction
-from functools import lru_cache
+from functools import cache
 from math import factorial
 
 
-@lru_cache(maxsize=None)
+@cache
 def threej0_squared(l1: int, l2: int, l3: int) -> Fraction:
     """Return (l1 l2 l3; 0 0 0)^2 exactly as a fraction."""
     if l1 < 0 or l2 < 0 or l3 < 0:
