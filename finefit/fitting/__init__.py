@@ -1,0 +1,1 @@
+"""Least-squares fits of radial parameters to observed levels (lmfit, analytic Jacobian)."""

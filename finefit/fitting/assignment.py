@@ -1,0 +1,178 @@
+"""Attaching observed levels to computed eigenstates, and keeping them attached.
+
+Initial attachment, per J and parity: levels pinned to a state, then labelled
+levels by the largest overlap of their LS basis state with the eigenvectors
+(resolved jointly with scipy.optimize.linear_sum_assignment), then unlabelled
+levels by energy order (or nearest energy) among the states left, preferring
+states of their configuration. During a fit the attachment follows the
+eigenvectors by maximum-overlap matching between iterations, so that levels do
+not swap when two eigenvalues cross.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.optimize import linear_sum_assignment
+
+from finefit.errors import FinefitError
+from finefit.fitting.settings import ObservedLevel
+from finefit.notation.jvalues import format_j
+from finefit.notation.labels import normalise_label
+
+
+def _strip_qualifiers(label: str) -> str:
+    """Label without seniority digits/letters after term letters (for loose matching)."""
+    return re.sub(r"([A-Z]°?)\d+[a-z]?(?=[)\s]|$)", r"\1", label)
+
+
+def match_label(label: str, basis_labels: list[str], J: float) -> int | None:
+    """Row of the LS basis state named by ``label`` (exact, then without qualifiers or J)."""
+    want = normalise_label(label)
+    if want in basis_labels:
+        return basis_labels.index(want)
+    # compact J written at the end, e.g. '3d6(5D)4s 6D9/2'
+    jt = format_j(J)
+    if want.endswith(jt):
+        head = want[: -len(jt)].rstrip("_ ")
+        if head in basis_labels:
+            return basis_labels.index(head)
+        want = head
+    loose = [_strip_qualifiers(b) for b in basis_labels]
+    w = _strip_qualifiers(want)
+    hits = [i for i, b in enumerate(loose) if b == w]
+    if len(hits) >= 1:
+        return hits[0]
+    return None
+
+
+@dataclass
+class BlockAttachment:
+    """Attachments of the observed levels of one (parity, J) block."""
+
+    parity: str
+    J2: int
+    level_ids: list[str]
+    eigen_index: np.ndarray  # current eigenstate of each level
+    reference: np.ndarray | None = None  # eigenvectors at the last accepted point
+    warnings: list[str] = field(default_factory=list)
+
+    def follow(self, V_new: np.ndarray) -> np.ndarray:
+        """Eigen indices after matching the new eigenvectors to the reference ones."""
+        if self.reference is None:
+            return self.eigen_index
+        overlap = (self.reference.T @ V_new) ** 2
+        rows, cols = linear_sum_assignment(-overlap)
+        perm = np.empty_like(cols)
+        perm[rows] = cols
+        return perm[self.eigen_index]
+
+
+def attach_block(
+    levels: list[ObservedLevel],
+    energies: np.ndarray,
+    vectors: np.ndarray,
+    basis_labels: list[str],
+    state_config: np.ndarray,
+    config_names: list[str],
+    assignment: str = "energy-order",
+) -> tuple[np.ndarray, list[str]]:
+    """Eigen index for each observed level of one J block, and warnings."""
+    n = energies.size
+    J = levels[0].J
+    if len(levels) > n:
+        raise FinefitError(
+            f"{len(levels)} observed levels have J = {format_j(J)} ({levels[0].parity}) but "
+            f"the model has only {n} states of that J: levels "
+            + ", ".join(lv.id for lv in levels),
+            levels[-1].id,
+        )
+    warnings: list[str] = []
+    result = np.full(len(levels), -1)
+    taken = np.zeros(n, dtype=bool)
+    weights = vectors**2
+    cfg_weight = np.zeros((len(config_names), n))
+    np.add.at(cfg_weight, state_config, weights)
+    lead_cfg = np.argmax(cfg_weight, axis=0)
+    # 1. pinned levels
+    for i, lv in enumerate(levels):
+        if lv.state is None:
+            continue
+        if isinstance(lv.state, int):
+            if not 1 <= lv.state <= n:
+                raise FinefitError(
+                    f"level {lv.id}: state {lv.state} does not exist (J = {format_j(J)} has "
+                    f"{n} states)",
+                    lv.id,
+                )
+            k = lv.state - 1
+        else:
+            row = match_label(lv.state, basis_labels, J)
+            if row is None:
+                raise FinefitError(
+                    f"level {lv.id}: state {lv.state!r} names no LS state of J = {format_j(J)}",
+                    lv.id,
+                )
+            k = int(np.argmax(weights[row]))
+        if taken[k]:
+            other = levels[int(np.flatnonzero(result == k)[0])].id
+            warnings.append(
+                f"levels {other} and {lv.id} are both attached to state {k + 1} of "
+                f"J = {format_j(J)}"
+            )
+        result[i] = k
+        taken[k] = True
+    # 2. labelled levels: joint maximum overlap
+    lab_idx, rows = [], []
+    for i, lv in enumerate(levels):
+        if result[i] >= 0 or not lv.label:
+            continue
+        row = match_label(lv.label, basis_labels, J)
+        if row is None:
+            raise FinefitError(
+                f"level {lv.id}: label {lv.label!r} names no LS state of J = {format_j(J)} "
+                f"({levels[0].parity}) in this model",
+                lv.id,
+            )
+        lab_idx.append(i)
+        rows.append(row)
+    if lab_idx:
+        free = np.flatnonzero(~taken)
+        cost = -weights[np.ix_(rows, free)]
+        r, c = linear_sum_assignment(cost)
+        for a, b in zip(r, c, strict=True):
+            result[lab_idx[a]] = free[b]
+            taken[free[b]] = True
+    # 3. unlabelled levels
+    rest = [i for i, lv in enumerate(levels) if result[i] < 0]
+    by_cfg: dict[int | None, list[int]] = {}
+    for i in rest:
+        cfg = levels[i].configuration
+        key = config_names.index(cfg) if cfg in config_names else None
+        by_cfg.setdefault(key, []).append(i)
+    for key in sorted(by_cfg, key=lambda k: (k is None, k or 0)):
+        idx = sorted(by_cfg[key], key=lambda i: levels[i].energy)
+        avail = [k for k in np.flatnonzero(~taken) if key is None or lead_cfg[k] == key]
+        if len(avail) < len(idx):
+            warnings.append(
+                "not enough states of configuration "
+                f"{config_names[key] if key is not None else '?'} with J = {format_j(J)} left "
+                "for levels " + ", ".join(levels[i].id for i in idx) + "; using states of any "
+                "configuration"
+            )
+            avail = list(np.flatnonzero(~taken))
+        avail = sorted(avail, key=lambda k: energies[k])
+        if assignment == "nearest":
+            cost = np.abs(
+                np.array([levels[i].energy for i in idx])[:, None] - energies[avail][None, :]
+            )
+            r, c = linear_sum_assignment(cost)
+            pairs = [(idx[a], avail[b]) for a, b in zip(r, c, strict=True)]
+        else:
+            pairs = list(zip(idx, avail[: len(idx)], strict=False))
+        for i, k in pairs:
+            result[i] = k
+            taken[k] = True
+    return result, warnings

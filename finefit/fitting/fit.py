@@ -1,0 +1,500 @@
+"""The least-squares fit: lmfit drives, the engine supplies energies and an exact Jacobian.
+
+Residuals are E_calc - E_obs of the included observed levels (times 1/u with
+``weighting = "uncertainty"``). The Jacobian is the Hellmann-Feynman derivative
+dE_i/dx_p = v_i^T C_p v_i carried through link groups by the chain rule
+(x_member = ratio * x_leader, so dE/dx_leader = sum ratio * dE/dx_member). lmfit's
+``least_squares`` method passes bounds to scipy natively, so the Jacobian needs
+no bound transformation. Statistics and the covariance are computed here from
+the final Jacobian so that undetermined parameters and parameters at a bound
+are named rather than given meaningless errors.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import lmfit
+import numpy as np
+
+from finefit.errors import FinefitError
+from finefit.fitting.assignment import BlockAttachment, attach_block, match_label
+from finefit.fitting.results import FitResult, LevelRow, PredictedLevel
+from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
+from finefit.model.coupling import coupling_data
+from finefit.model.hamiltonian import Model, _solve_block
+from finefit.notation.jvalues import format_j
+
+
+class FitCancelled(Exception):
+    """Raised inside the fit when the caller asked it to stop."""
+
+
+@dataclass(frozen=True)
+class Variable:
+    """One lmfit variable: a free parameter or the leader of a varying link group."""
+
+    name: str  # the (leader) parameter's qualified name
+    members: tuple[tuple[int, float], ...]  # (global parameter index, ratio)
+    min: float
+    max: float
+    group: str | None
+
+
+class FitProblem:
+    """Observed levels, models (one per parity) and parameter settings, ready to fit."""
+
+    def __init__(
+        self,
+        models: dict[str, Model],
+        settings: dict[str, ParameterSetting],
+        levels: list[ObservedLevel],
+        options: FitOptions | None = None,
+    ) -> None:
+        self.models = models
+        self.options = options or FitOptions()
+        self.options.check()
+        self.names: list[str] = []
+        self.offset: dict[str, int] = {}
+        for parity, model in models.items():
+            self.offset[parity] = len(self.names)
+            self.names.extend(model.parameters)
+        known = set(self.names)
+        for name in settings:
+            if name not in known:
+                raise FinefitError(
+                    f"parameter {name!r} does not exist for the session's configurations", name
+                )
+        self.settings = {n: (settings.get(n) or ParameterSetting()).copy() for n in self.names}
+        for n, s in self.settings.items():
+            s.check(n)
+        self.x_start = np.array([self.settings[n].value for n in self.names])
+        self.variables = self._variables()
+        self.chain = np.zeros((len(self.names), len(self.variables)))
+        for j, var in enumerate(self.variables):
+            for gi, ratio in var.members:
+                self.chain[gi, j] = ratio
+        self.fixed_part = self.x_start.copy()
+        for var in self.variables:
+            for gi, _ in var.members:
+                self.fixed_part[gi] = 0.0
+        self.levels = [lv.copy() for lv in levels]
+        self._check_levels()
+        self.included = [lv for lv in self.levels if lv.include]
+        self.warnings: list[str] = []
+        self._attach()
+
+    # ------------------------------------------------------------------ set-up
+    def _variables(self) -> list[Variable]:
+        groups: dict[str, list[int]] = {}
+        out: list[Variable] = []
+        for i, n in enumerate(self.names):
+            s = self.settings[n]
+            if s.link:
+                groups.setdefault(s.link, []).append(i)
+            elif s.vary:
+                out.append(
+                    Variable(
+                        n, ((i, 1.0),),
+                        -np.inf if s.min is None else s.min,
+                        np.inf if s.max is None else s.max,
+                        None,
+                    )
+                )
+        for g, members in groups.items():
+            if not any(self.settings[self.names[i]].vary for i in members):
+                continue
+            lead = members[0]
+            v0 = self.settings[self.names[lead]].value
+            if v0 == 0.0:
+                raise FinefitError(
+                    f"link group {g!r}: its first parameter {self.names[lead]!r} is 0, so the "
+                    "ratios are undefined; give it a non-zero value",
+                    g,
+                )
+            ratios = tuple((i, self.settings[self.names[i]].value / v0) for i in members)
+            lo, hi = -np.inf, np.inf
+            for i, r in ratios:
+                s = self.settings[self.names[i]]
+                for bound in (s.min, s.max):
+                    if bound is None or r == 0:
+                        continue
+                    b = bound / r
+                    if (bound is s.min) == (r > 0):
+                        lo = max(lo, b)
+                    else:
+                        hi = min(hi, b)
+            out.append(Variable(self.names[lead], ratios, lo, hi, g))
+        out.sort(key=lambda v: self.names.index(v.name))
+        return out
+
+    def _check_levels(self) -> None:
+        seen: dict[str, ObservedLevel] = {}
+        keys: dict[tuple, str] = {}
+        for lv in self.levels:
+            if lv.id in seen:
+                raise FinefitError(f"level id {lv.id!r} is used twice", lv.id)
+            seen[lv.id] = lv
+            if lv.parity not in self.models:
+                raise FinefitError(
+                    f"level {lv.id}: no configuration of {lv.parity} parity in the session",
+                    lv.id,
+                )
+            model = self.models[lv.parity]
+            j2 = round(2 * lv.J)
+            block = next((b for b in model.blocks if b.J2 == j2), None)
+            if block is None:
+                raise FinefitError(
+                    f"level {lv.id}: J = {format_j(lv.J)} is impossible for "
+                    f"{', '.join(model.configurations)}",
+                    lv.id,
+                )
+            if lv.configuration is not None:
+                if lv.configuration not in model.configurations:
+                    raise FinefitError(
+                        f"level {lv.id}: configuration {lv.configuration!r} is not among the "
+                        f"session's {lv.parity} configurations ({', '.join(model.configurations)})",
+                        lv.id,
+                    )
+                ci = model.configurations.index(lv.configuration)
+                if not np.any(block.state_config == ci):
+                    raise FinefitError(
+                        f"level {lv.id}: J = {format_j(lv.J)} is impossible for "
+                        f"configuration {lv.configuration}",
+                        lv.id,
+                    )
+            key = (lv.parity, j2, round(lv.energy, 6))
+            if key in keys:
+                raise FinefitError(
+                    f"levels {keys[key]} and {lv.id} are duplicates (same energy, J and parity)",
+                    lv.id,
+                )
+            keys[key] = lv.id
+            if lv.uncertainty is not None and not lv.uncertainty > 0:
+                raise FinefitError(f"level {lv.id}: uncertainty must be positive", lv.id)
+
+    def _attach(self) -> None:
+        self.attachments: dict[tuple[str, int], BlockAttachment] = {}
+        by_block: dict[tuple[str, int], list[ObservedLevel]] = {}
+        for lv in self.levels:
+            by_block.setdefault((lv.parity, round(2 * lv.J)), []).append(lv)
+        for (parity, j2), lvs in by_block.items():
+            model = self.models[parity]
+            b = next(b for b in model.blocks if b.J2 == j2)
+            x = self._model_x(self.x_start, parity)
+            w, V, _ = _solve_block(b, x, False)
+            cd = coupling_data(model)[j2]
+            idx, warns = attach_block(
+                lvs, w, V, cd.ls_labels, b.state_config, model.configurations,
+                self.options.assignment,
+            )
+            self.warnings.extend(warns)
+            self.attachments[(parity, j2)] = BlockAttachment(
+                parity, j2, [lv.id for lv in lvs], idx, V.copy()
+            )
+        # residual order: included levels, in the order given
+        self._slot = {}
+        for key, att in self.attachments.items():
+            for pos, lid in enumerate(att.level_ids):
+                self._slot[lid] = (key, pos)
+        self.obs = np.array([lv.energy for lv in self.included])
+        u = np.array(
+            [lv.uncertainty if lv.uncertainty else self.options.default_uncertainty
+             for lv in self.included]
+        )
+        self.u = u
+        self.sqrt_w = 1.0 / u if self.options.weighting == "uncertainty" else np.ones_like(u)
+
+    def _model_x(self, x_global: np.ndarray, parity: str) -> np.ndarray:
+        off = self.offset[parity]
+        return x_global[off : off + len(self.models[parity].parameters)]
+
+    def x_of(self, v: np.ndarray) -> np.ndarray:
+        return self.fixed_part + self.chain @ v
+
+    @property
+    def v_start(self) -> np.ndarray:
+        return np.array([self.x_start[var.members[0][0]] for var in self.variables])
+
+    # ------------------------------------------------------------------ evaluation
+    def evaluate(self, v: np.ndarray, jacobian: bool, commit: bool):
+        """Calculated energies of the included levels (and d/d variables)."""
+        x = self.x_of(v)
+        calc = {}
+        jac_rows = {}
+        for key, att in self.attachments.items():
+            parity, j2 = key
+            model = self.models[parity]
+            b = next(bb for bb in model.blocks if bb.J2 == j2)
+            w, V, D = _solve_block(b, self._model_x(x, parity), jacobian)
+            idx = att.follow(V) if self.options.follow_eigenvectors else att.eigen_index
+            if commit:
+                att.eigen_index = idx
+                att.reference = V.copy()
+            for pos, lid in enumerate(att.level_ids):
+                calc[lid] = w[idx[pos]]
+                if jacobian:
+                    row = np.zeros(len(self.names))
+                    row[self.offset[parity] + b.param_index] = D[idx[pos]]
+                    jac_rows[lid] = row
+        e = np.array([calc[lv.id] for lv in self.included])
+        if not jacobian:
+            return e, None
+        J = np.array([jac_rows[lv.id] for lv in self.included]).reshape(len(self.included), -1)
+        return e, J @ self.chain
+
+    # ------------------------------------------------------------------ fit
+    def fit(
+        self,
+        should_stop: Callable[[], bool] | None = None,
+        progress: Callable[[int, float], None] | None = None,
+    ) -> FitResult:
+        """Run the least-squares fit from the settings' values; never raises for a bad fit."""
+        if not self.variables:
+            return self.report(message="nothing to vary: values as given")
+        if not self.included:
+            raise FinefitError("no observed level is included in the fit", "levels")
+        params = lmfit.Parameters()
+        for j, var in enumerate(self.variables):
+            params.add(f"v{j}", value=float(self.v_start[j]), min=var.min, max=var.max)
+        n_var = len(self.variables)
+        state = {"calls": 0}
+
+        def values(p) -> np.ndarray:
+            return np.array([p[f"v{j}"].value for j in range(n_var)])
+
+        def residual(p, **_):
+            e, _ = self.evaluate(values(p), jacobian=False, commit=False)
+            return (e - self.obs) * self.sqrt_w
+
+        def jac(p, **_):
+            _, J = self.evaluate(values(p), jacobian=True, commit=True)
+            return J * self.sqrt_w[:, None]
+
+        def iter_cb(p, it, resid, *a, **k):
+            state["calls"] = it
+            if progress is not None:
+                progress(it, float(np.sqrt(np.mean((resid / self.sqrt_w) ** 2))))
+            return bool(should_stop and should_stop())
+
+        mini = lmfit.Minimizer(residual, params, iter_cb=iter_cb)
+        with np.errstate(all="ignore"):
+            res = mini.minimize(
+                method="least_squares",
+                jac=jac,
+                max_nfev=self.options.max_iterations,
+                ftol=self.options.tolerance,
+                xtol=self.options.tolerance,
+                gtol=self.options.tolerance,
+                x_scale="jac",
+            )
+        if getattr(res, "aborted", False):
+            raise FitCancelled("fit cancelled")
+        v = values(res.params)
+        converged = bool(res.success) and res.nfev < self.options.max_iterations
+        message = (
+            "converged" if converged else f"did not converge after {res.nfev} evaluations "
+            f"({getattr(res, 'message', '')})"
+        )
+        return self._result(v, converged, message, int(res.nfev))
+
+    def report(self, message: str = "values as given (no fit)") -> FitResult:
+        """Statistics and levels at the settings' values, without fitting."""
+        return self._result(self.v_start, True, message, 0)
+
+    # ------------------------------------------------------------------ results
+    def _result(self, v: np.ndarray, converged: bool, message: str, nfev: int) -> FitResult:
+        e, J = self.evaluate(v, jacobian=True, commit=True)
+        x = self.x_of(v)
+        resid = self.obs - e
+        n = len(self.included)
+        n_free = len(self.variables)
+        dof = n - n_free
+        sigma = math.sqrt(float(resid @ resid) / dof) if dof > 0 else None
+        chi2 = float(np.sum((resid / self.u) ** 2))
+        red = chi2 / dof if dof > 0 else None
+        warnings = list(self.warnings)
+        status = {}
+        for i, nme in enumerate(self.names):
+            s = self.settings[nme]
+            status[nme] = "linked" if (s.link and np.any(self.chain[i])) else (
+                "varied" if np.any(self.chain[i]) else "fixed")
+        errors_v, undetermined, at_bound, corr, note = self._covariance(v, J, resid, dof, warnings)
+        cov_v = self._cov_v
+        errors = {nme: 0.0 for nme in self.names}
+        for j, var in enumerate(self.variables):
+            for gi, ratio in var.members:
+                nm = self.names[gi]
+                errors[nm] = float(abs(ratio) * errors_v[j])
+                if j in undetermined:
+                    status[nm] = "undetermined"
+                elif j in at_bound:
+                    status[nm] = "at bound"
+        var_names = [var.name + (f" [{var.group}]" if var.group else "") for var in self.variables]
+        strong = []
+        thr = self.options.correlation_threshold
+        for a in range(n_free):
+            for b in range(a + 1, n_free):
+                if abs(corr[a, b]) >= thr:
+                    strong.append((var_names[a], var_names[b], float(corr[a, b])))
+        values = {nme: float(x[i]) for i, nme in enumerate(self.names)}
+        start = {nme: float(self.x_start[i]) for i, nme in enumerate(self.names)}
+        ratios, ref = {}, {}
+        for nme in self.names:
+            ab = self.settings[nme].ab_initio
+            if ab:
+                ratios[nme], ref[nme] = values[nme] / ab, "ab initio"
+            elif start[nme]:
+                ratios[nme], ref[nme] = values[nme] / start[nme], "start"
+            else:
+                ratios[nme], ref[nme] = None, "start"
+        undetermined_names = [self.variables[j].name for j in sorted(undetermined)]
+        if undetermined_names:
+            warnings.append(
+                "the data do not determine: " + ", ".join(undetermined_names)
+                + " (fix or link them)"
+            )
+        if not converged:
+            warnings.append("the fit did not converge: " + message)
+        rows, preds, sols = self._levels(x, cov_v)
+        mismatched = [r.id for r in rows if r.label_mismatch]
+        if mismatched:
+            warnings.append(
+                "leading component differs from the label for levels " + ", ".join(mismatched)
+            )
+        return FitResult(
+            converged=converged, message=message, n_levels=n, n_free=n_free, sigma=sigma,
+            chi2=chi2, reduced_chi2=red, iterations=nfev, values=values, errors=errors,
+            status=status, start=start, ratios=ratios, ratio_reference=ref,
+            correlation=(var_names, corr), strong_correlations=strong, levels=rows,
+            predictions=preds, warnings=warnings, undetermined=undetermined_names,
+            included_ids=[lv.id for lv in self.included], covariance_note=note, solutions=sols,
+        )
+
+    def _covariance(self, v, J, resid, dof, warnings):
+        n_free = len(self.variables)
+        errors = np.full(n_free, np.inf)
+        corr = np.eye(n_free)
+        self._cov_v = np.zeros((n_free, n_free))
+        at_bound = set()
+        for j, var in enumerate(self.variables):
+            span = max(1.0, abs(v[j]))
+            if (np.isfinite(var.min) and v[j] - var.min <= 1e-9 * span) or (
+                np.isfinite(var.max) and var.max - v[j] <= 1e-9 * span
+            ):
+                at_bound.add(j)
+        if n_free == 0:
+            return errors, set(), at_bound, corr, "no free parameters"
+        Jw = J * self.sqrt_w[:, None]
+        active = [j for j in range(n_free) if j not in at_bound]
+        undetermined: set[int] = set()
+        norms = np.linalg.norm(Jw, axis=0)
+        big = norms.max(initial=0.0)
+        for j in active:
+            if norms[j] <= 1e-12 * max(big, 1e-300):
+                undetermined.add(j)
+        det = [j for j in active if j not in undetermined]
+        if dof <= 0:
+            warnings.append(
+                f"{len(self.included)} levels for {n_free} free parameters: no degrees of "
+                "freedom, so no sigma and no standard errors"
+            )
+            return errors, undetermined, at_bound, corr, "no degrees of freedom"
+        if det:
+            A = Jw[:, det] / norms[det]
+            U, s, Vt = np.linalg.svd(A, full_matrices=False)
+            keep = s > 1e-9 * s[0]
+            for k in np.flatnonzero(~keep):
+                for jj in np.flatnonzero(np.abs(Vt[k]) > 0.3):
+                    undetermined.add(det[jj])
+            cov_s = (Vt[keep].T / s[keep] ** 2) @ Vt[keep]
+            cov = cov_s / np.outer(norms[det], norms[det])
+            if self.options.weighting == "none":
+                scale = float(resid @ resid) / dof
+                note = "covariance scaled by sigma^2 (unweighted fit)"
+            elif self.options.scale_covariance:
+                scale = float(np.sum((resid * self.sqrt_w) ** 2)) / dof
+                note = "covariance scaled by the reduced chi-square"
+            else:
+                scale = 1.0
+                note = "covariance from the given uncertainties (not scaled)"
+            cov *= scale
+            for a, ja in enumerate(det):
+                for b, jb in enumerate(det):
+                    self._cov_v[ja, jb] = cov[a, b]
+            d = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+            for a, ja in enumerate(det):
+                if ja not in undetermined:
+                    errors[ja] = d[a]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                c = cov / np.outer(d, d)
+            for a, ja in enumerate(det):
+                for b, jb in enumerate(det):
+                    if ja in undetermined or jb in undetermined:
+                        continue
+                    corr[ja, jb] = c[a, b] if np.isfinite(c[a, b]) else 0.0
+        else:
+            note = "no determined parameter"
+        for j in at_bound:
+            warnings.append(f"{self.variables[j].name} is at a bound: no standard error")
+        return errors, undetermined, at_bound, corr, note
+
+    def _levels(self, x: np.ndarray, cov_v: np.ndarray):
+        rows: list[LevelRow] = []
+        preds: list[PredictedLevel] = []
+        sols = {}
+        lv_by_id = {lv.id: lv for lv in self.levels}
+        for parity, model in self.models.items():
+            sol = model.solve(self._model_x(x, parity))
+            sols[parity] = sol
+            by_pos = {(lev.block, lev.position): lev for lev in sol.levels}
+            attached: dict[tuple[int, int], str] = {}
+            for (p, j2), att in self.attachments.items():
+                if p != parity:
+                    continue
+                for pos, lid in enumerate(att.level_ids):
+                    attached[(j2, int(att.eigen_index[pos]))] = lid
+            off = self.offset[parity]
+            for lev in sol.levels:
+                grad = np.zeros(len(self.names))
+                grad[off : off + len(model.parameters)] = sol.gradient(lev)
+                gv = grad @ self.chain
+                unc = float(np.sqrt(max(gv @ cov_v @ gv, 0.0)))
+                scheme = sol.best_scheme(lev)
+                comps = tuple(
+                    (c.label, c.fraction) for c in sol.composition(lev, scheme, top=3)
+                )
+                key = (lev.block, lev.position)
+                if key in attached:
+                    lid = attached[key]
+                    obs = lv_by_id[lid]
+                    mismatch = bool(obs.label) and match_label(obs.label, [lev.label], obs.J) is None
+                    rows.append(
+                        LevelRow(
+                            id=lid, J=lev.J, parity=parity, energy_obs=obs.energy,
+                            uncertainty=obs.uncertainty, energy_calc=lev.energy,
+                            residual=obs.energy - lev.energy, included=obs.include,
+                            label=obs.label or "", calc_label=lev.label,
+                            configuration=lev.configuration, purity=lev.purity,
+                            purity_jj=sol.purity(lev, "jj"), purity_jk=sol.purity(lev, "JK"),
+                            best_scheme=scheme, components=comps, g_calc=lev.g, g_obs=obs.g,
+                            state_rank=lev.position + 1, calc_uncertainty=unc,
+                            label_mismatch=mismatch,
+                        )
+                    )
+                else:
+                    preds.append(
+                        PredictedLevel(
+                            J=lev.J, parity=parity, energy=lev.energy, uncertainty=unc,
+                            label=lev.label, configuration=lev.configuration,
+                            purity=lev.purity, g=lev.g, state_rank=lev.position + 1,
+                            components=comps,
+                        )
+                    )
+            del by_pos
+        order = {lv.id: i for i, lv in enumerate(self.levels)}
+        rows.sort(key=lambda r: order[r.id])
+        preds.sort(key=lambda p: (p.parity, p.energy))
+        return rows, preds, sols

@@ -1,0 +1,377 @@
+"""A term-analysis session: ion, configurations, parameters, observed levels, saved fits.
+
+This is the API the command line, the terminal workspace and notebooks share.
+
+>>> s = Session.new(["2p2"], Z=6)                           # doctest: +SKIP
+>>> s.set_parameter("2p2: F2(2p)", 45000.0, vary=True)
+>>> s.add_level(energy=43.4, J=2, parity="even", label="2p2 3P")
+>>> r = s.fit(); r.sigma
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import replace
+from datetime import UTC, datetime
+from functools import lru_cache
+from pathlib import Path
+
+from finefit.errors import FinefitError
+from finefit.fitting.fit import FitProblem
+from finefit.fitting.results import FitResult
+from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
+from finefit.model.hamiltonian import Model
+from finefit.notation.configuration import parse_configuration
+from finefit.notation.jvalues import parse_j
+from finefit.storage.atomic import atomic_write_text
+from finefit.storage.session_file import (
+    Ion,
+    ParameterSet,
+    SessionData,
+    dump_session,
+    parse_session,
+)
+
+# Kinds varied by default in a new session; CI integrals and effective corrections are
+# commonly held fixed at scaled ab initio values until the data can carry them.
+DEFAULT_VARY = {"Eav", "F", "G", "zeta"}
+
+
+@lru_cache(maxsize=16)
+def model_for(configurations: tuple[str, ...]) -> Model:
+    """The (immutable) model of one interacting set, shared between sessions."""
+    return Model(list(configurations))
+
+
+def group_by_parity(configurations: list[str]) -> dict[str, tuple[str, ...]]:
+    """Interacting sets: the configurations of each parity, in the order given."""
+    out: dict[str, list[str]] = {}
+    for text in configurations:
+        c = parse_configuration(text)
+        out.setdefault(c.parity, []).append(str(c))
+    return {p: tuple(v) for p, v in out.items()}
+
+
+class Session:
+    """Observed levels of one ion and the parametric model fitted to them."""
+
+    def __init__(self, data: SessionData, path: str | Path | None = None) -> None:
+        self.path = Path(path) if path else None
+        self.ion = data.ion
+        self.title = data.title
+        self.note = data.note
+        self.options = data.options
+        self.parameter_sets: list[ParameterSet] = list(data.parameter_sets)
+        self.configurations = [str(parse_configuration(c)) for c in data.configurations]
+        self._sets = group_by_parity(self.configurations)
+        self.models = {p: model_for(cfgs) for p, cfgs in self._sets.items()}
+        self.parameters: dict[str, ParameterSetting] = {}
+        known = [n for m in self.models.values() for n in m.parameters]
+        for name in data.parameters:
+            if name not in known:
+                raise FinefitError(
+                    f"parameter {name!r} does not exist for configurations "
+                    f"{', '.join(self.configurations)}",
+                    name,
+                )
+        for parity, model in self.models.items():
+            for spec in model.parameter_specs:
+                self.parameters[spec.name] = data.parameters.get(spec.name) or ParameterSetting(
+                    vary=spec.kind in DEFAULT_VARY
+                )
+        self.levels: list[ObservedLevel] = []
+        for lv in data.levels:
+            self._check_level(lv)
+            self.levels.append(lv)
+        self.last_result: FitResult | None = None
+
+    # ------------------------------------------------------------------ creation
+    @classmethod
+    def new(
+        cls,
+        configurations: list[str] | str,
+        Z: int,
+        charge: int = 0,
+        ionization_limit: float | None = None,
+        name: str = "",
+        title: str = "",
+    ) -> Session:
+        if isinstance(configurations, str):
+            configurations = [configurations]
+        if not isinstance(Z, int) or not 1 <= Z <= 118:
+            raise FinefitError(f"Z = {Z!r} is not a nuclear charge (1..118)", "Z")
+        if not isinstance(charge, int) or not 0 <= charge < Z:
+            raise FinefitError(f"charge = {charge!r} must be 0 .. Z-1", "charge")
+        data = SessionData(
+            ion=Ion(Z, charge, ionization_limit, name), configurations=list(configurations),
+            parameters={}, levels=[], options=FitOptions(), title=title,
+        )
+        return cls(data)
+
+    @classmethod
+    def load(cls, path: str | Path) -> Session:
+        p = Path(path)
+        try:
+            text = p.read_text(encoding="utf-8")
+        except FileNotFoundError:
+            raise FinefitError(f"session file {str(p)!r} does not exist", str(p)) from None
+        except (OSError, UnicodeDecodeError) as exc:
+            raise FinefitError(f"cannot read session file {str(p)!r}: {exc}", str(p)) from None
+        return cls(parse_session(text, source=str(p)), path=p)
+
+    # ------------------------------------------------------------------ persistence
+    def data(self) -> SessionData:
+        return SessionData(
+            ion=self.ion, configurations=list(self.configurations),
+            parameters=dict(self.parameters), levels=list(self.levels), options=self.options,
+            parameter_sets=list(self.parameter_sets), title=self.title, note=self.note,
+        )
+
+    def to_toml(self) -> str:
+        return dump_session(self.data())
+
+    def save(self, path: str | Path | None = None) -> Path:
+        """Save atomically; the previous file is kept as ``<name>.bak``."""
+        target = Path(path) if path else self.path
+        if target is None:
+            raise FinefitError("no file name given for saving the session", "path")
+        atomic_write_text(target, self.to_toml())
+        self.path = target
+        return target
+
+    def copy(self) -> Session:
+        return Session(parse_session(self.to_toml()), path=self.path)
+
+    # ------------------------------------------------------------------ parameters
+    def set_parameter(
+        self,
+        name: str,
+        value: float | None = None,
+        vary: bool | None = None,
+        *,
+        min: float | None | str = "keep",
+        max: float | None | str = "keep",
+        link: str | None = "keep",
+        ab_initio: float | None | str = "keep",
+    ) -> ParameterSetting:
+        """Change a parameter; arguments left out keep their current setting."""
+        if name not in self.parameters:
+            raise FinefitError(
+                f"parameter {name!r} does not exist; known: {', '.join(self.parameters)}", name
+            )
+        s = self.parameters[name].copy()
+        if value is not None:
+            try:
+                s.value = float(value)
+            except (TypeError, ValueError):
+                raise FinefitError(f"value of {name!r} must be a number: {value!r}", name) from None
+        if vary is not None:
+            s.vary = bool(vary)
+        if min != "keep":
+            s.min = None if min is None else float(min)
+        if max != "keep":
+            s.max = None if max is None else float(max)
+        if link != "keep":
+            s.link = link or None
+        if ab_initio != "keep":
+            s.ab_initio = None if ab_initio is None else float(ab_initio)
+        s.check(name)
+        self.parameters[name] = s
+        return s
+
+    def values(self) -> dict[str, float]:
+        return {n: s.value for n, s in self.parameters.items()}
+
+    # ------------------------------------------------------------------ levels
+    def _check_level(self, lv: ObservedLevel) -> None:
+        if lv.parity not in self.models:
+            raise FinefitError(
+                f"level {lv.id}: the session has no {lv.parity} configuration", lv.id
+            )
+        model = self.models[lv.parity]
+        if round(2 * lv.J) not in {b.J2 for b in model.blocks}:
+            raise FinefitError(
+                f"level {lv.id}: J = {lv.J:g} is impossible for {', '.join(model.configurations)}",
+                lv.id,
+            )
+        if lv.configuration is not None:
+            c = str(parse_configuration(lv.configuration))
+            if c not in model.configurations:
+                raise FinefitError(
+                    f"level {lv.id}: configuration {lv.configuration!r} is not in the session",
+                    lv.id,
+                )
+            lv.configuration = c
+        if not math.isfinite(lv.energy):
+            raise FinefitError(f"level {lv.id}: energy must be finite", lv.id)
+
+    def _new_id(self) -> str:
+        used = {lv.id for lv in self.levels}
+        k = len(self.levels) + 1
+        while f"L{k:03d}" in used:
+            k += 1
+        return f"L{k:03d}"
+
+    def add_level(
+        self,
+        energy: float,
+        J: float | str,
+        parity: str,
+        configuration: str | None = None,
+        label: str | None = None,
+        uncertainty: float | None = None,
+        include: bool = True,
+        g: float | None = None,
+        note: str = "",
+        id: str | None = None,
+        state: int | str | None = None,
+    ) -> str:
+        """Add an observed level; returns its id."""
+        if parity not in ("even", "odd"):
+            raise FinefitError(f"parity must be 'even' or 'odd', got {parity!r}", "parity")
+        try:
+            e = float(energy)
+        except (TypeError, ValueError):
+            raise FinefitError(f"energy must be a number, got {energy!r}", "energy") from None
+        if uncertainty is not None and not float(uncertainty) > 0:
+            raise FinefitError("uncertainty must be positive", "uncertainty")
+        lid = id or self._new_id()
+        if any(lv.id == lid for lv in self.levels):
+            raise FinefitError(f"level id {lid!r} is already used", lid)
+        lv = ObservedLevel(
+            id=lid, energy=e, J=parse_j(J), parity=parity, uncertainty=uncertainty,
+            configuration=configuration, label=label, include=include, g=g, note=note,
+            state=state,
+        )
+        self._check_level(lv)
+        self.levels.append(lv)
+        return lid
+
+    def level(self, level_id: str) -> ObservedLevel:
+        for lv in self.levels:
+            if lv.id == level_id:
+                return lv
+        raise FinefitError(f"no level with id {level_id!r}", level_id)
+
+    def update_level(self, level_id: str, **changes) -> ObservedLevel:
+        """Change fields of an observed level (validated as a whole)."""
+        lv = self.level(level_id)
+        allowed = {"energy", "J", "parity", "configuration", "label", "uncertainty", "include",
+                   "g", "note", "state"}
+        bad = set(changes) - allowed
+        if bad:
+            raise FinefitError(f"unknown level field {sorted(bad)[0]!r}", sorted(bad)[0])
+        if "J" in changes:
+            changes["J"] = parse_j(changes["J"])
+        if "energy" in changes:
+            try:
+                changes["energy"] = float(changes["energy"])
+            except (TypeError, ValueError):
+                raise FinefitError(f"energy must be a number, got {changes['energy']!r}",
+                                   "energy") from None
+        if changes.get("uncertainty") is not None and not float(changes["uncertainty"]) > 0:
+            raise FinefitError("uncertainty must be positive", "uncertainty")
+        new = replace(lv, **changes)
+        self._check_level(new)
+        self.levels[self.levels.index(lv)] = new
+        return new
+
+    def remove_level(self, level_id: str) -> ObservedLevel:
+        lv = self.level(level_id)
+        self.levels.remove(lv)
+        return lv
+
+    def attach(self, level_id: str, state: int | str | None) -> ObservedLevel:
+        """Pin an observed level to a computed eigenstate (rank within its J, or an LS label)."""
+        return self.update_level(level_id, state=state)
+
+    # ------------------------------------------------------------------ fitting
+    def problem(self) -> FitProblem:
+        return FitProblem(self.models, self.parameters, self.levels, self.options)
+
+    def fit(
+        self,
+        should_stop: Callable[[], bool] | None = None,
+        progress: Callable[[int, float], None] | None = None,
+    ) -> FitResult:
+        """Fit with the session's options; the session's values are not changed."""
+        result = self.problem().fit(should_stop=should_stop, progress=progress)
+        self.last_result = result
+        return result
+
+    def report(self) -> FitResult:
+        """Observed vs calculated at the current values, without fitting."""
+        result = self.problem().report()
+        self.last_result = result
+        return result
+
+    def apply(self, result: FitResult) -> None:
+        """Take the fitted values as the session's current values."""
+        for name, v in result.values.items():
+            if name in self.parameters:
+                self.parameters[name].value = v
+
+    def solve(self, parity: str | None = None):
+        """Computed levels at the current values (one Solution per parity)."""
+        out = {}
+        for p, model in self.models.items():
+            if parity is None or p == parity:
+                out[p] = model.solve({n: self.parameters[n].value for n in model.parameters})
+        return out
+
+    # ------------------------------------------------------------------ parameter sets
+    def keep(self, result: FitResult, name: str, note: str = "") -> ParameterSet:
+        """Store a fit as a named, timestamped parameter set."""
+        if not name or not name.strip():
+            raise FinefitError("a parameter set needs a name", "name")
+        if any(ps.name == name for ps in self.parameter_sets):
+            raise FinefitError(f"a parameter set named {name!r} exists already", name)
+        ps = ParameterSet(
+            name=name, created=datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
+            values=dict(result.values),
+            errors={k: v for k, v in result.errors.items()},
+            sigma=result.sigma, n_levels=result.n_levels, n_free=result.n_free,
+            included=list(result.included_ids), converged=result.converged, note=note,
+        )
+        self.parameter_sets.append(ps)
+        return ps
+
+    def parameter_set(self, name: str) -> ParameterSet:
+        for ps in self.parameter_sets:
+            if ps.name == name:
+                return ps
+        known = ", ".join(ps.name for ps in self.parameter_sets) or "none"
+        raise FinefitError(f"no parameter set named {name!r} (saved sets: {known})", name)
+
+    def use_set(self, name: str) -> None:
+        """Start from a saved parameter set's values."""
+        ps = self.parameter_set(name)
+        for n, v in ps.values.items():
+            if n in self.parameters:
+                self.parameters[n].value = v
+
+    def remove_set(self, name: str) -> ParameterSet:
+        ps = self.parameter_set(name)
+        self.parameter_sets.remove(ps)
+        return ps
+
+    def compare_sets(self, a: str, b: str) -> list[dict]:
+        """Per parameter: both values, the change and the change in combined standard errors."""
+        pa, pb = self.parameter_set(a), self.parameter_set(b)
+        rows = []
+        for n in dict.fromkeys(list(pa.values) + list(pb.values)):
+            va, vb = pa.values.get(n), pb.values.get(n)
+            ea, eb = pa.errors.get(n, 0.0), pb.errors.get(n, 0.0)
+            diff = None if va is None or vb is None else vb - va
+            comb = math.hypot(ea, eb)
+            rows.append({
+                "name": n, "a": va, "b": vb, "change": diff,
+                "in_errors": (diff / comb) if diff is not None and comb > 0 else None,
+            })
+        return rows
+
+
+def load(path: str | Path) -> Session:
+    """Read a session file (the CONVENTIONS.md entry point)."""
+    return Session.load(path)

@@ -1,0 +1,1 @@
+"""Session files, level tables and exports: the only place finefit touches files."""
