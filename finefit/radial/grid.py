@@ -56,6 +56,7 @@ class RadialGrid:
         self._exchange: dict[tuple[int, int], np.ndarray] = {}
         # powers of Z r used by the O(N) Y^k sums; Z r spans about e^-7 .. e^10
         self._zr = np.exp(self.x)
+        self._pow: dict[int, tuple[np.ndarray, np.ndarray]] = {}
 
     # ------------------------------------------------------------------ operators
     def numerov_matrix(self, l: int) -> np.ndarray:
@@ -142,22 +143,26 @@ class RadialGrid:
         s = self.h * (np.cumsum(g) - 0.5 * g)
         return s - (self.h**2 / 12.0) * derivative(g, self.h)
 
+    def _powers(self, k: int) -> tuple[np.ndarray, np.ndarray]:
+        """((Z r)^k, (Z r)^-(k+1)), cached; Z r spans about e^-9 .. e^10, safe for k <= 12."""
+        p = self._pow.get(k)
+        if p is None:
+            p = self._pow[k] = (self._zr**k, self._zr ** (-(k + 1)))
+        return p
+
     def yk_over_r(self, rho: np.ndarray, k: int) -> np.ndarray:
         """Y^k(r)/r = int rho(r') r<^k / r>^(k+1) dr' at every grid point, in O(N).
 
         Two cumulative sums (the usual Y^k = Z^k + outer part construction), with the
         same kink correction as :meth:`kernel`, so that this is exactly (N^k rho) / r.
+        ``rho`` may be a stack of densities (rows); the result has the same shape.
         """
         g = rho * self.r  # integrand in x
-        zr = self._zr
-        if k == 0:
-            inner = np.cumsum(g) / zr
-            outer = np.cumsum((g / zr)[::-1])[::-1]
-        else:
-            inner = np.cumsum(g * zr**k) / zr ** (k + 1)
-            outer = np.cumsum((g / zr ** (k + 1))[::-1])[::-1] * zr**k
+        up, down = self._powers(k)
+        inner = np.cumsum(g * up, axis=-1) * down
+        outer = np.cumsum((g * down)[..., ::-1], axis=-1)[..., ::-1] * up
         # the diagonal point appears in both sums: count it once
-        total = inner + outer - g / zr
+        total = inner + outer - g / self._zr
         return self.h * self.Z * total - (2 * k + 1) * self.h**2 * g / (12.0 * self.r)
 
     def rk(self, rho1: np.ndarray, rho2: np.ndarray, k: int) -> float:

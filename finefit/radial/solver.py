@@ -176,6 +176,19 @@ class HartreeFockSolver:
             if not (self.shells[i].closed and self.shells[j].closed)
         ]
         self.norm = np.sqrt(2.0 / grid.h)  # |z| of a normalised orbital
+        # terms grouped by k as index arrays: (F a, F b, F coef, G a, G b, G coef)
+        self._terms_by_k: dict[int, tuple[np.ndarray, ...]] = {}
+        for k in sorted({t.k for t in self.terms}):
+            fs = [t for t in self.terms if t.k == k and t.kind == "F"]
+            gs = [t for t in self.terms if t.k == k and t.kind == "G"]
+            self._terms_by_k[k] = (
+                np.array([t.a for t in fs], dtype=int),
+                np.array([t.b for t in fs], dtype=int),
+                np.array([t.coef for t in fs]),
+                np.array([t.a for t in gs], dtype=int),
+                np.array([t.b for t in gs], dtype=int),
+                np.array([t.coef for t in gs]),
+            )
 
     # ------------------------------------------------------------------ helpers
     def y_of(self, z: np.ndarray) -> np.ndarray:
@@ -294,20 +307,18 @@ class HartreeFockSolver:
             kz = g.kinetic(s.l) @ z[i]
             kinetic += s.w * 0.5 * h * float(z[i] @ kz)
             nuclear -= s.w * 0.5 * h * self.Z * float(np.sum(z[i] ** 2 / g.r))
-        y = self.y_of(z)
-        rho = self.densities(z)
+        # two-electron part, batched by k: one stacked Y^k evaluation per k and kind
         two = 0.0
-        cache: dict[tuple[int, int, int], np.ndarray] = {}
-        for t in self.terms:
-            if t.kind == "F":
-                key = (t.b, t.b, t.k)
-                pot = cache.get(key)
-                if pot is None:
-                    pot = cache[key] = g.yk_over_r(rho[t.b], t.k)
-                two += t.coef * h * float(np.dot(rho[t.a] * g.r, pot))
-            else:
-                pab = g.r * y[t.a] * y[t.b]
-                two += t.coef * g.rk(pab, pab, t.k)
+        for k, (fa, fb, fc, ga, gb, gc) in self._terms_by_k.items():
+            if len(fa):
+                rho_a = z[fa] ** 2 / (2.0 * g.r)
+                rho_b = z[fb] ** 2 / (2.0 * g.r)
+                pot = g.yk_over_r(rho_b, k)
+                two += h * float(np.sum(fc * np.sum(rho_a * g.r * pot, axis=1)))
+            if len(ga):
+                pab = z[ga] * z[gb] / (2.0 * g.r)
+                pot = g.yk_over_r(pab, k)
+                two += h * float(np.sum(gc * np.sum(pab * g.r * pot, axis=1)))
         return kinetic + nuclear + two, kinetic
 
     # -------------------------------------------------------------------- step
