@@ -142,9 +142,19 @@ def attach_block(
         free = np.flatnonzero(~taken)
         cost = -weights[np.ix_(rows, free)]
         r, c = linear_sum_assignment(cost)
-        for a, b in zip(r, c, strict=True):
-            result[lab_idx[a]] = free[b]
-            taken[free[b]] = True
+        chosen = {lab_idx[a]: int(free[b]) for a, b in zip(r, c, strict=True)}
+        # levels sharing one label: the set of states maximises the overlap, the pairing
+        # within the set follows energy order
+        for row in set(rows):
+            same = [lab_idx[k] for k in range(len(rows)) if rows[k] == row]
+            if len(same) > 1:
+                states = sorted((chosen[i] for i in same), key=lambda k: energies[k])
+                for i, k in zip(sorted(same, key=lambda i: levels[i].energy), states,
+                                strict=True):
+                    chosen[i] = k
+        for i, k in chosen.items():
+            result[i] = k
+            taken[k] = True
     # 3. unlabelled levels
     rest = [i for i, lv in enumerate(levels) if result[i] < 0]
     by_cfg: dict[int | None, list[int]] = {}

@@ -277,7 +277,10 @@ class FitProblem:
             state["calls"] = it
             if progress is not None:
                 progress(it, float(np.sqrt(np.mean((resid / self.sqrt_w) ** 2))))
-            return bool(should_stop and should_stop())
+            if should_stop is not None and should_stop():
+                state["cancelled"] = True
+                return True
+            return False
 
         mini = lmfit.Minimizer(residual, params, iter_cb=iter_cb)
         with np.errstate(all="ignore"):
@@ -290,10 +293,12 @@ class FitProblem:
                 gtol=self.options.tolerance,
                 x_scale="jac",
             )
-        if getattr(res, "aborted", False):
+        if state.get("cancelled"):
             raise FitCancelled("fit cancelled")
         v = values(res.params)
-        converged = bool(res.success) and res.nfev < self.options.max_iterations
+        # lmfit also 'aborts' when it runs out of evaluations: that is non-convergence
+        aborted = bool(getattr(res, "aborted", False))
+        converged = bool(res.success) and not aborted and res.nfev < self.options.max_iterations
         message = (
             "converged" if converged else f"did not converge after {res.nfev} evaluations "
             f"({getattr(res, 'message', '')})"
@@ -342,9 +347,12 @@ class FitProblem:
         values = {nme: float(x[i]) for i, nme in enumerate(self.names)}
         start = {nme: float(self.x_start[i]) for i, nme in enumerate(self.names)}
         ratios, ref = {}, {}
+        kinds = {sp.name: sp.kind for m in self.models.values() for sp in m.parameter_specs}
         for nme in self.names:
             ab = self.settings[nme].ab_initio
-            if ab:
+            if kinds[nme] == "Eav":  # an energy origin: a ratio means nothing
+                ratios[nme], ref[nme] = None, ""
+            elif ab:
                 ratios[nme], ref[nme] = values[nme] / ab, "ab initio"
             elif start[nme]:
                 ratios[nme], ref[nme] = values[nme] / start[nme], "start"

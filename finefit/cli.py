@@ -1,0 +1,470 @@
+"""The ``finefit`` command line. Exit status: 0 ok, 1 fit not converged, 2 bad input."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+from pathlib import Path
+
+from rich.console import Console
+from rich.table import Table
+from rich.text import Text
+
+from finefit.errors import FinefitError
+from finefit.notation.jvalues import format_j
+
+EXIT_OK, EXIT_NOT_CONVERGED, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
+
+CAUTION = (
+    "Calculated energies, compositions and predictions come from a parametric model: "
+    "check them against the spectrum before using them as identifications."
+)
+
+
+def _console(args) -> Console:
+    return Console(no_color=bool(os.environ.get("NO_COLOR")) or getattr(args, "json", False))
+
+
+def _err_console() -> Console:
+    return Console(stderr=True, no_color=bool(os.environ.get("NO_COLOR")))
+
+
+def _load(path: str):
+    from finefit.session import Session
+
+    with _err_console().status("reading the session and building the energy matrices"):
+        return Session.load(path)
+
+
+def _json(obj) -> None:
+    print(json.dumps(obj, indent=2, ensure_ascii=False, allow_nan=False))
+
+
+# ----------------------------------------------------------------------------- commands
+def cmd_new(args) -> int:
+    from finefit.session import Session
+
+    path = Path(args.session)
+    if path.exists() and not args.force:
+        raise FinefitError(f"{path} exists already (use --force to overwrite)", str(path))
+    with _err_console().status("building the energy matrices"):
+        s = Session.new(args.config, Z=args.Z, charge=args.charge,
+                        ionization_limit=args.limit, name=args.name or "", title=args.title or "")
+    s.save(path)
+    con = _console(args)
+    n = sum(len(m.parameters) for m in s.models.values())
+    con.print(f"created {path}: {', '.join(s.configurations)}; {n} parameters")
+    return EXIT_OK
+
+
+def cmd_params(args) -> int:
+    s = _load(args.session)
+    if args.json:
+        _json([
+            {"name": n, "value": p.value, "vary": p.vary, "min": p.min, "max": p.max,
+             "link": p.link, "ab_initio": p.ab_initio}
+            for n, p in s.parameters.items()
+        ])
+        return EXIT_OK
+    tab = Table(title=f"Parameters of {args.session} (cm-1)", title_justify="left")
+    for c in ("parameter", "value", "vary", "link", "min", "max", "ab initio"):
+        tab.add_column(c, justify="right" if c in ("value", "min", "max", "ab initio") else "left")
+    for n, p in s.parameters.items():
+        tab.add_row(Text(n), f"{p.value:.2f}", "vary" if p.vary else "fixed", p.link or "",
+                    "" if p.min is None else f"{p.min:g}", "" if p.max is None else f"{p.max:g}",
+                    "" if p.ab_initio is None else f"{p.ab_initio:.1f}")
+    _console(args).print(tab)
+    return EXIT_OK
+
+
+def cmd_set(args) -> int:
+    s = _load(args.session)
+    vary = True if args.vary else (False if args.fix else None)
+    kw = {}
+    if args.link is not None:
+        kw["link"] = args.link
+    if args.unlink:
+        kw["link"] = None
+    if args.min is not None:
+        kw["min"] = None if args.min.lower() == "none" else _float(args.min, "--min")
+    if args.max is not None:
+        kw["max"] = None if args.max.lower() == "none" else _float(args.max, "--max")
+    names = _match_parameters(s, args.name)
+    for n in names:
+        s.set_parameter(n, None if args.value is None else _float(args.value, "--value"),
+                        vary, **kw)
+    s.save()
+    _console(args).print(f"changed {len(names)} parameter(s): {', '.join(names)}")
+    return EXIT_OK
+
+
+def _match_parameters(s, pattern: str) -> list[str]:
+    import fnmatch
+
+    if pattern in s.parameters:
+        return [pattern]
+    hits = [n for n in s.parameters if fnmatch.fnmatchcase(n, pattern)]
+    if not hits:
+        raise FinefitError(f"no parameter matches {pattern!r}", pattern)
+    return hits
+
+
+def _float(text: str, what: str) -> float:
+    try:
+        return float(text)
+    except ValueError:
+        raise FinefitError(f"{what} needs a number, got {text!r}", what) from None
+
+
+def _print_result(con: Console, s, r, args) -> None:
+    from finefit.reports import tables
+
+    con.print(tables.summary_text(r))
+    con.print(tables.parameter_table(r, s.parameters))
+    con.print(tables.level_table(r, width=con.width))
+    corr = tables.correlation_table(r)
+    if corr is not None:
+        con.print(corr)
+    if getattr(args, "predictions", False):
+        con.print(tables.prediction_table(r))
+    for w in r.warnings:
+        con.print(Text("warning: " + w, style="yellow"))
+    con.print(Text(CAUTION, style="dim"))
+
+
+def cmd_fit(args) -> int:
+    from rich.progress import Progress, SpinnerColumn, TextColumn
+
+    s = _load(args.session)
+    con = _console(args)
+    show = not args.json and sys.stderr.isatty()
+    with Progress(SpinnerColumn(), TextColumn("{task.description}"), console=_err_console(),
+                  transient=True, disable=not show) as prog:
+        task = prog.add_task("fitting", total=None)
+
+        def progress(it: int, rms: float) -> None:
+            prog.update(task, description=f"fitting: evaluation {it}, rms {rms:.3f} cm-1")
+
+        r = s.fit(progress=progress)
+    if args.write:
+        s.apply(r)
+    if args.keep:
+        s.keep(r, args.keep)
+    if args.write or args.keep:
+        s.save()
+    if args.json:
+        _json(r.to_dict())
+    else:
+        _print_result(con, s, r, args)
+        if args.write or args.keep:
+            con.print(f"saved {s.path}")
+    return EXIT_OK if r.converged else EXIT_NOT_CONVERGED
+
+
+def cmd_check(args) -> int:
+    s = _load(args.session)
+    r = s.report()
+    if args.json:
+        _json(r.to_dict())
+    else:
+        _print_result(_console(args), s, r, args)
+    return EXIT_OK
+
+
+def cmd_levels(args) -> int:
+    s = _load(args.session)
+    sols = s.solve(args.parity)
+    rows = []
+    for parity, sol in sols.items():
+        for lev in sol.levels:
+            scheme = sol.best_scheme(lev)
+            comps = sol.composition(lev, scheme, top=3)
+            rows.append((parity, lev, scheme, comps))
+    if args.json:
+        _json([
+            {"parity": p, "J": lev.J, "energy": lev.energy, "label": lev.label,
+             "configuration": lev.configuration, "purity_LS": lev.purity, "g": lev.g,
+             "best_scheme": sch,
+             "components": [{"label": c.label, "fraction": c.fraction} for c in comps]}
+            for p, lev, sch, comps in rows
+        ])
+        return EXIT_OK
+    tab = Table(title=f"Computed levels of {args.session} (cm-1)", title_justify="left")
+    for c, j in (("parity", "left"), ("J", "right"), ("energy", "right"), ("label", "left"),
+                 ("LS purity", "right"), ("leading components", "left"), ("g", "right")):
+        tab.add_column(c, justify=j)
+    for p, lev, sch, comps in rows:
+        tab.add_row(p, format_j(lev.J), f"{lev.energy:.2f}", Text(lev.label),
+                    f"{100 * lev.purity:.0f}%",
+                    Text("  ".join(f"{100 * c.fraction:.0f}% {c.label}" for c in comps)),
+                    f"{lev.g:.4f}")
+    con = _console(args)
+    con.print(tab)
+    con.print(Text(CAUTION, style="dim"))
+    return EXIT_OK
+
+
+def cmd_attach(args) -> int:
+    s = _load(args.session)
+    state = args.state
+    if state.lower() == "none":
+        value = None
+    else:
+        try:
+            value = int(state)
+        except ValueError:
+            value = state
+    s.attach(args.level, value)
+    s.save()
+    _console(args).print(f"level {args.level} attached to {state}")
+    return EXIT_OK
+
+
+def cmd_include(args, include: bool) -> int:
+    s = _load(args.session)
+    for lid in args.level:
+        s.update_level(lid, include=include)
+    s.save()
+    _console(args).print(f"{'included' if include else 'excluded'}: {', '.join(args.level)}")
+    return EXIT_OK
+
+
+def _columns(spec: str | None) -> dict[str, str] | None:
+    if not spec:
+        return None
+    out = {}
+    for part in spec.split(","):
+        if "=" not in part:
+            raise FinefitError(
+                f"column mapping {part!r} must look like field=column, e.g. energy=E", part
+            )
+        k, v = part.split("=", 1)
+        out[k.strip()] = v.strip()
+    return out
+
+
+def cmd_import(args) -> int:
+    from finefit.storage.level_tables import read_levels
+
+    s = _load(args.session)
+    defaults = {}
+    if args.parity:
+        defaults["parity"] = args.parity
+    if args.configuration:
+        defaults["configuration"] = args.configuration
+    levels = read_levels(args.table, _columns(args.columns), args.format, defaults,
+                         id_start=1 if args.replace else len(s.levels) + 1)
+    if args.replace:
+        s.levels = []
+    used = {lv.id for lv in s.levels}
+    for lv in levels:
+        if lv.id in used:
+            raise FinefitError(f"{args.table}: level id {lv.id!r} exists in the session", lv.id)
+        s._check_level(lv)
+        used.add(lv.id)
+    s.levels.extend(levels)
+    s.problem()  # validates J counts and labels before anything is written
+    s.save()
+    _console(args).print(f"imported {len(levels)} levels into {s.path}")
+    return EXIT_OK
+
+
+def cmd_export(args) -> int:
+    from finefit.storage.level_tables import write_levels
+
+    s = _load(args.session)
+    p = write_levels(s.levels, args.output, args.format)
+    _console(args).print(f"wrote {len(s.levels)} levels to {p}")
+    return EXIT_OK
+
+
+def cmd_sets(args) -> int:
+    s = _load(args.session)
+    con = _console(args)
+    action = args.action
+    if action == "list":
+        if args.json:
+            _json([{"name": ps.name, "created": ps.created, "sigma": ps.sigma,
+                    "n_levels": ps.n_levels, "n_free": ps.n_free, "converged": ps.converged}
+                   for ps in s.parameter_sets])
+            return EXIT_OK
+        tab = Table(title="Saved parameter sets", title_justify="left")
+        for c in ("name", "created", "sigma", "N levels", "N free", "converged"):
+            tab.add_column(c)
+        for ps in s.parameter_sets:
+            tab.add_row(Text(ps.name), ps.created,
+                        "—" if ps.sigma is None else f"{ps.sigma:.3f}",
+                        str(ps.n_levels), str(ps.n_free), "yes" if ps.converged else "no")
+        con.print(tab)
+        return EXIT_OK
+    if not args.names:
+        raise FinefitError(f"'sets {action}' needs a set name", "name")
+    if action == "show":
+        ps = s.parameter_set(args.names[0])
+        if args.json:
+            _json({"name": ps.name, "created": ps.created, "sigma": ps.sigma,
+                   "values": ps.values, "errors": ps.errors, "included": ps.included})
+            return EXIT_OK
+        tab = Table(title=f"Parameter set {ps.name!r} ({ps.created})", title_justify="left")
+        tab.add_column("parameter")
+        tab.add_column("value", justify="right")
+        tab.add_column("error", justify="right")
+        for n, v in ps.values.items():
+            e = ps.errors.get(n)
+            tab.add_row(Text(n), f"{v:.2f}", "" if not e else f"{e:.2f}")
+        con.print(tab)
+        return EXIT_OK
+    if action == "compare":
+        if len(args.names) != 2:
+            raise FinefitError("'sets compare' needs two set names", "name")
+        rows = s.compare_sets(*args.names)
+        if args.json:
+            _json(rows)
+            return EXIT_OK
+        a, b = args.names
+        tab = Table(title=f"{a!r} → {b!r}", title_justify="left")
+        for c in ("parameter", a, b, "change", "in std. errors"):
+            tab.add_column(c, justify="left" if c == "parameter" else "right")
+        for row in rows:
+            z = row["in_errors"]
+            tab.add_row(Text(row["name"]),
+                        "—" if row["a"] is None else f"{row['a']:.2f}",
+                        "—" if row["b"] is None else f"{row['b']:.2f}",
+                        "—" if row["change"] is None else f"{row['change']:+.2f}",
+                        Text("—" if z is None else f"{z:+.1f}",
+                             style="bold" if z is not None and abs(z) > 2 else ""))
+        con.print(tab)
+        return EXIT_OK
+    if action == "use":
+        s.use_set(args.names[0])
+        s.save()
+        con.print(f"values of set {args.names[0]!r} are now the session's starting values")
+        return EXIT_OK
+    if action == "remove":
+        s.remove_set(args.names[0])
+        s.save()
+        con.print(f"removed set {args.names[0]!r}")
+        return EXIT_OK
+    raise FinefitError(f"unknown sets action {action!r}", action)
+
+
+# ----------------------------------------------------------------------------- parser
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="finefit",
+        description="Term analysis of atomic spectra: fit radial parameters of an "
+        "intermediate-coupling Hamiltonian to observed levels.",
+    )
+    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+    sub.required = True
+
+    def add(name: str, help_: str, json_flag: bool = True):
+        sp = sub.add_parser(name, help=help_, description=help_)
+        sp.add_argument("session", help="session file (TOML)")
+        if json_flag:
+            sp.add_argument("--json", action="store_true", help="print JSON for scripts")
+        return sp
+
+    sp = add("new", "create a session from configurations", json_flag=False)
+    sp.add_argument("--config", "-c", action="append", required=True,
+                    help="a configuration such as '3d6 4s' (repeat for several)")
+    sp.add_argument("--Z", type=int, required=True, help="nuclear charge")
+    sp.add_argument("--charge", type=int, default=0, help="ion charge (0 = neutral)")
+    sp.add_argument("--limit", type=float, help="ionization limit in cm-1")
+    sp.add_argument("--name", help="ion name for reports, e.g. 'Fe II'")
+    sp.add_argument("--title", help="a title for the session")
+    sp.add_argument("--force", action="store_true", help="overwrite an existing file")
+    sp.set_defaults(func=cmd_new)
+
+    sp = add("fit", "fit the varied parameters to the included levels")
+    sp.add_argument("--write", action="store_true", help="store the fitted values in the session")
+    sp.add_argument("--keep", metavar="NAME", help="save the fit as a named parameter set")
+    sp.add_argument("--predictions", action="store_true", help="also list unobserved levels")
+    sp.set_defaults(func=cmd_fit)
+
+    sp = add("check", "observed vs calculated at the current values (no fit)")
+    sp.add_argument("--predictions", action="store_true", help="also list unobserved levels")
+    sp.set_defaults(func=cmd_check)
+
+    sp = add("levels", "computed levels at the current values, with compositions")
+    sp.add_argument("--parity", choices=("even", "odd"))
+    sp.set_defaults(func=cmd_levels)
+
+    sp = add("params", "list the parameters and their settings")
+    sp.set_defaults(func=cmd_params)
+
+    sp = add("set", "change parameters (name or a pattern such as '3d7: F*')", json_flag=False)
+    sp.add_argument("name")
+    sp.add_argument("--value")
+    g = sp.add_mutually_exclusive_group()
+    g.add_argument("--vary", action="store_true")
+    g.add_argument("--fix", action="store_true")
+    g2 = sp.add_mutually_exclusive_group()
+    g2.add_argument("--link", metavar="GROUP", help="vary together with fixed ratios")
+    g2.add_argument("--unlink", action="store_true")
+    sp.add_argument("--min", help="lower bound (or 'none')")
+    sp.add_argument("--max", help="upper bound (or 'none')")
+    sp.set_defaults(func=cmd_set)
+
+    sp = add("attach", "pin an observed level to a computed state (rank or LS label)",
+             json_flag=False)
+    sp.add_argument("level", help="level id")
+    sp.add_argument("state", help="rank of the state within its J (1 = lowest), an LS label, "
+                    "or 'none' to let the fit choose")
+    sp.set_defaults(func=cmd_attach)
+
+    sp = add("include", "include levels in the fit", json_flag=False)
+    sp.add_argument("level", nargs="+")
+    sp.set_defaults(func=lambda a: cmd_include(a, True))
+    sp = add("exclude", "exclude levels from the fit", json_flag=False)
+    sp.add_argument("level", nargs="+")
+    sp.set_defaults(func=lambda a: cmd_include(a, False))
+
+    sp = add("import", "read observed levels from a CSV, TSV or whitespace table",
+             json_flag=False)
+    sp.add_argument("table")
+    sp.add_argument("--columns", help="field=column pairs, e.g. 'energy=E,J=Jval,label=desig'")
+    sp.add_argument("--format", choices=("csv", "tsv", "txt"))
+    sp.add_argument("--parity", choices=("even", "odd"), help="parity of levels without one")
+    sp.add_argument("--configuration", help="configuration of levels without one")
+    sp.add_argument("--replace", action="store_true", help="replace the session's levels")
+    sp.set_defaults(func=cmd_import)
+
+    sp = add("export", "write the observed levels as a table", json_flag=False)
+    sp.add_argument("output")
+    sp.add_argument("--format", choices=("csv", "tsv", "txt"))
+    sp.set_defaults(func=cmd_export)
+
+    sp = add("sets", "saved parameter sets: list, show, compare, use, remove")
+    sp.add_argument("action", nargs="?", default="list",
+                    choices=("list", "show", "compare", "use", "remove"))
+    sp.add_argument("names", nargs="*")
+    sp.set_defaults(func=cmd_sets)
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return int(args.func(args))
+    except FinefitError as exc:
+        _err_console().print(Text(f"finefit: error: {exc}", style="bold red"))
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        _err_console().print("finefit: interrupted")
+        return 130
+    except Exception as exc:  # noqa: BLE001 - last line of defence: no tracebacks for users
+        if os.environ.get("FINEFIT_DEBUG"):
+            raise
+        _err_console().print(
+            Text(f"finefit: internal error: {type(exc).__name__}: {exc} "
+                 "(set FINEFIT_DEBUG=1 for details)", style="bold red")
+        )
+        return EXIT_INTERNAL
+
+
+if __name__ == "__main__":
+    sys.exit(main())
