@@ -122,7 +122,7 @@ def _print_result(con: Console, s, r, args) -> None:
     from finefit.reports import tables
 
     con.print(tables.summary_text(r))
-    con.print(tables.parameter_table(r, s.parameters))
+    con.print(tables.parameter_table(r, s.parameters, width=con.width))
     con.print(tables.level_table(r, width=con.width))
     corr = tables.correlation_table(r)
     if corr is not None:
@@ -195,7 +195,7 @@ def cmd_levels(args) -> int:
     for c, j in (("parity", "left"), ("J", "right"), ("energy", "right"), ("label", "left"),
                  ("LS purity", "right"), ("leading components", "left"), ("g", "right")):
         tab.add_column(c, justify=j)
-    for p, lev, sch, comps in rows:
+    for p, lev, _sch, comps in rows:
         tab.add_row(p, format_j(lev.J), f"{lev.energy:.2f}", Text(lev.label),
                     f"{100 * lev.purity:.0f}%",
                     Text("  ".join(f"{100 * c.fraction:.0f}% {c.label}" for c in comps)),
@@ -217,8 +217,35 @@ def cmd_attach(args) -> int:
         except ValueError:
             value = state
     s.attach(args.level, value)
+    s.problem()  # the state must exist before anything is written
     s.save()
     _console(args).print(f"level {args.level} attached to {state}")
+    return EXIT_OK
+
+
+def cmd_edit(args) -> int:
+    s = _load(args.session)
+    changes = {}
+    for item in args.changes:
+        if "=" not in item:
+            raise FinefitError(f"{item!r} must look like field=value, e.g. label='3d7 4F'", item)
+        key, value = item.split("=", 1)
+        key = key.strip()
+        if key in ("energy", "uncertainty", "g"):
+            changes[key] = None if value.lower() in ("", "none") else _float(value, key)
+        elif key == "include":
+            if value.lower() not in ("yes", "no", "true", "false"):
+                raise FinefitError(f"include must be yes or no, got {value!r}", key)
+            changes[key] = value.lower() in ("yes", "true")
+        elif key == "state":
+            changes[key] = None if value.lower() in ("", "none") else (
+                int(value) if value.isdigit() else value)
+        else:
+            changes[key] = value or None
+    lv = s.update_level(args.level, **changes)
+    s.problem()  # labels, J counts and attachments must still make sense
+    s.save()
+    _console(args).print(f"level {lv.id}: " + ", ".join(f"{k} = {v!r}" for k, v in changes.items()))
     return EXIT_OK
 
 
@@ -415,6 +442,13 @@ def build_parser() -> argparse.ArgumentParser:
                     "or 'none' to let the fit choose")
     sp.set_defaults(func=cmd_attach)
 
+    sp = add("edit", "change fields of an observed level: label, energy, uncertainty, J, ...",
+             json_flag=False)
+    sp.add_argument("level", help="level id")
+    sp.add_argument("changes", nargs="+", metavar="FIELD=VALUE",
+                    help="e.g. label='3d6(3H)4s 4H' uncertainty=0.05 include=no")
+    sp.set_defaults(func=cmd_edit)
+
     sp = add("include", "include levels in the fit", json_flag=False)
     sp.add_argument("level", nargs="+")
     sp.set_defaults(func=lambda a: cmd_include(a, True))
@@ -451,7 +485,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(args.func(args))
     except FinefitError as exc:
-        _err_console().print(Text(f"finefit: error: {exc}", style="bold red"))
+        print(f"finefit: error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         _err_console().print("finefit: interrupted")
@@ -459,10 +493,8 @@ def main(argv: list[str] | None = None) -> int:
     except Exception as exc:  # noqa: BLE001 - last line of defence: no tracebacks for users
         if os.environ.get("FINEFIT_DEBUG"):
             raise
-        _err_console().print(
-            Text(f"finefit: internal error: {type(exc).__name__}: {exc} "
-                 "(set FINEFIT_DEBUG=1 for details)", style="bold red")
-        )
+        print(f"finefit: internal error: {type(exc).__name__}: {exc} "
+              "(set FINEFIT_DEBUG=1 for details)", file=sys.stderr)
         return EXIT_INTERNAL
 
 

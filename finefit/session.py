@@ -75,7 +75,7 @@ class Session:
                     f"{', '.join(self.configurations)}",
                     name,
                 )
-        for parity, model in self.models.items():
+        for model in self.models.values():
             for spec in model.parameter_specs:
                 self.parameters[spec.name] = data.parameters.get(spec.name) or ParameterSetting(
                     vary=spec.kind in DEFAULT_VARY

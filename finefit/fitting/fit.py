@@ -282,28 +282,76 @@ class FitProblem:
                 return True
             return False
 
-        mini = lmfit.Minimizer(residual, params, iter_cb=iter_cb)
-        with np.errstate(all="ignore"):
-            res = mini.minimize(
-                method="least_squares",
-                jac=jac,
-                max_nfev=self.options.max_iterations,
-                ftol=self.options.tolerance,
-                xtol=self.options.tolerance,
-                gtol=self.options.tolerance,
-                x_scale="jac",
+        total = 0
+        v = self.v_start
+        notes: list[str] = []
+        for _round in range(4):
+            for j in range(n_var):
+                params[f"v{j}"].value = float(np.clip(v[j], self.variables[j].min,
+                                                      self.variables[j].max))
+            mini = lmfit.Minimizer(residual, params, iter_cb=iter_cb)
+            with np.errstate(all="ignore"):
+                res = mini.minimize(
+                    method="least_squares",
+                    jac=jac,
+                    max_nfev=self.options.max_iterations,
+                    ftol=self.options.tolerance,
+                    xtol=self.options.tolerance,
+                    gtol=self.options.tolerance,
+                    x_scale="jac",
+                )
+            if state.get("cancelled"):
+                raise FitCancelled("fit cancelled")
+            v = values(res.params)
+            total += int(res.nfev)
+            # lmfit also 'aborts' when it runs out of evaluations: that is non-convergence
+            aborted = bool(getattr(res, "aborted", False))
+            converged = (
+                bool(res.success) and not aborted and res.nfev < self.options.max_iterations
             )
-        if state.get("cancelled"):
-            raise FitCancelled("fit cancelled")
-        v = values(res.params)
-        # lmfit also 'aborts' when it runs out of evaluations: that is non-convergence
-        aborted = bool(getattr(res, "aborted", False))
-        converged = bool(res.success) and not aborted and res.nfev < self.options.max_iterations
+            if not converged or not self.options.follow_eigenvectors:
+                break
+            # between fits the labels decide: re-attach labelled levels at the fitted values
+            moved = self._reattach_by_label(v)
+            if not moved:
+                break
+            notes.append(", ".join(moved))
+            params = res.params
         message = (
-            "converged" if converged else f"did not converge after {res.nfev} evaluations "
+            "converged" if converged else f"did not converge after {total} evaluations "
             f"({getattr(res, 'message', '')})"
         )
-        return self._result(v, converged, message, int(res.nfev))
+        for n in notes:
+            self.warnings.append(
+                f"after a fit, levels {n} were re-attached by their labels and the fit repeated"
+            )
+        return self._result(v, converged, message, total)
+
+    def _reattach_by_label(self, v: np.ndarray) -> list[str]:
+        """Re-run the label attachment at ``v``; returns the ids of levels that moved."""
+        x = self.x_of(v)
+        moved = []
+        lv_by_id = {lv.id: lv for lv in self.levels}
+        for (parity, j2), att in self.attachments.items():
+            model = self.models[parity]
+            b = next(bb for bb in model.blocks if bb.J2 == j2)
+            w, V, _ = _solve_block(b, self._model_x(x, parity), False)
+            idx = att.follow(V)
+            trial = []
+            for pos, lid in enumerate(att.level_ids):
+                lv = lv_by_id[lid].copy()
+                if isinstance(lv.state, int) or not (lv.label or lv.state):
+                    lv.state = int(idx[pos]) + 1  # keep where the fit took it
+                trial.append(lv)
+            cd = coupling_data(model)[j2]
+            new, _ = attach_block(trial, w, V, cd.ls_labels, b.state_config,
+                                  model.configurations, self.options.assignment)
+            changed = [att.level_ids[k] for k in np.flatnonzero(new != idx)]
+            if changed:
+                moved.extend(changed)
+            att.eigen_index = new
+            att.reference = V.copy()
+        return moved
 
     def report(self, message: str = "values as given (no fit)") -> FitResult:
         """Statistics and levels at the settings' values, without fitting."""
@@ -478,7 +526,9 @@ class FitProblem:
                 if key in attached:
                     lid = attached[key]
                     obs = lv_by_id[lid]
-                    mismatch = bool(obs.label) and match_label(obs.label, [lev.label], obs.J) is None
+                    mismatch = bool(obs.label) and (
+                        match_label(obs.label, [lev.label], obs.J) is None
+                    )
                     rows.append(
                         LevelRow(
                             id=lid, J=lev.J, parity=parity, energy_obs=obs.energy,

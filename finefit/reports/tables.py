@@ -31,12 +31,19 @@ def summary_text(r: FitResult) -> Text:
     return t
 
 
-def parameter_table(r: FitResult, settings: dict | None = None) -> Table:
+SHORT_STATUS = {"fixed": "fixed", "varied": "vary", "linked": "link", "at bound": "bound",
+                "undetermined": "undet."}
+
+
+def parameter_table(r: FitResult, settings: dict | None = None, width: int = 200) -> Table:
+    """Fitted parameters; narrow screens drop the start value and shorten the status."""
+    wide = width >= 110
     tab = Table(title="Parameters (cm-1)", title_justify="left", show_lines=False)
-    for col, just in (("parameter", "left"), ("value", "right"), ("error", "right"),
-                      ("status", "left"), ("start", "right"), ("ratio", "right"),
-                      ("to", "left")):
-        tab.add_column(col, justify=just, no_wrap=True)
+    cols = [("parameter", "left"), ("value", "right"), ("error", "right"), ("status", "left")]
+    cols += [("start", "right"), ("ratio", "right"), ("to", "left")] if wide else [
+        ("ratio", "right")]
+    for col, just in cols:
+        tab.add_column(col, justify=just, no_wrap=col != "parameter")
     for name, value in r.values.items():
         err = r.errors[name]
         status = r.status[name]
@@ -47,10 +54,14 @@ def parameter_table(r: FitResult, settings: dict | None = None) -> Table:
             link = (settings or {}).get(name)
             status = f"linked {link.link}" if link is not None and link.link else status
         ratio = r.ratios[name]
-        tab.add_row(
-            Text(name), fmt_num(value, 1), err_text, status, fmt_num(r.start[name], 1),
-            "" if ratio is None else f"{ratio:.3f}", r.ratio_reference[name] if ratio else "",
-        )
+        ratio_text = "" if ratio is None else f"{ratio:.3f}"
+        if wide:
+            tab.add_row(Text(name), fmt_num(value, 1), err_text, status,
+                        fmt_num(r.start[name], 1), ratio_text,
+                        r.ratio_reference[name] if ratio else "")
+        else:
+            tab.add_row(Text(name), fmt_num(value, 1), err_text,
+                        SHORT_STATUS.get(r.status[name], status), ratio_text)
     return tab
 
 
@@ -62,27 +73,39 @@ def residual_style(residual: float, sigma: float | None) -> str:
 
 
 def level_table(r: FitResult, limit: int | None = None, width: int = 200) -> Table:
-    """Observed vs calculated; on narrow screens only the leading component is shown."""
+    """Observed vs calculated; narrow screens show the leading component only, no g."""
+    wide = width >= 150
     tab = Table(title="Observed levels (cm-1)", title_justify="left")
-    for col, just in (("id", "left"), ("J", "right"), ("E obs", "right"), ("E calc", "right"),
-                      ("O-C", "right"), ("label", "left"), ("leading components", "left"),
-                      ("g calc", "right"), ("g obs", "right"), ("", "left")):
+    cols = [("id", "left"), ("J", "right"), ("E obs", "right"), ("E calc", "right"),
+            ("O-C", "right")]
+    if wide:
+        cols.append(("label", "left"))
+    cols.append(("leading components", "left"))
+    if wide:
+        cols += [("g calc", "right"), ("g obs", "right")]
+    cols.append(("", "left"))
+    for col, just in cols:
         tab.add_column(col, justify=just, no_wrap=col not in ("label", "leading components"))
     rows = r.levels if limit is None else r.levels[:limit]
-    n_comp = 3 if width >= 160 else 1
+    n_comp = 3 if width >= 200 else 1
     for row in rows:
         comps = "  ".join(f"{100 * f:.0f}% {lab}" for lab, f in row.components[:n_comp])
         flags = []
         if not row.included:
-            flags.append("excluded")
+            flags.append("excl.")
         if row.label_mismatch:
-            flags.append("label?")
-        tab.add_row(
+            flags.append("≠ label" if wide else f"≠ {row.label}")
+        cells = [
             row.id, format_j(row.J), f"{row.energy_obs:.2f}", f"{row.energy_calc:.2f}",
             Text(f"{row.residual:.2f}", style=residual_style(row.residual, r.sigma)),
-            Text(row.label or "—"), Text(comps), f"{row.g_calc:.4f}",
-            "" if row.g_obs is None else f"{row.g_obs:.3f}", " ".join(flags),
-        )
+        ]
+        if wide:
+            cells.append(Text(row.label or "—"))
+        cells.append(Text(comps))
+        if wide:
+            cells += [f"{row.g_calc:.4f}", "" if row.g_obs is None else f"{row.g_obs:.3f}"]
+        cells.append(" ".join(flags))
+        tab.add_row(*cells)
     return tab
 
 

@@ -1,0 +1,108 @@
+"""Regenerate the demo sessions in this folder. ALL DATA HERE ARE INVENTED.
+
+The scenario: the fictitious "Kestrel Ridge Laboratory" records hollow-cathode
+spectra of two made-up ions. Their 'observed' levels are computed by finefit from
+chosen parameters, with Gaussian measurement noise added, and one level in the
+iron-group demo is deliberately given another level's label so that the fit
+exposes it. Nothing here is a measurement of a real atom.
+
+Run from the repository root: python sample_sessions/make_samples.py
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from finefit.fitting.synthetic import synthetic_levels
+from finefit.session import Session
+
+HERE = Path(__file__).resolve().parent
+
+NOTE = (
+    "INVENTED DATA for demonstration: levels computed by finefit from chosen parameters "
+    "plus Gaussian noise ({noise} cm-1) in the fictitious Kestrel Ridge Laboratory "
+    "scenario. Not a measurement of any real ion. {extra}"
+)
+
+
+def iron_group() -> Session:
+    configs = ["3d6 4s", "3d7", "3d5 4s2"]
+    true = {
+        "3d6 4s: Eav": 30000.0, "3d6 4s: F2(3d)": 85000.0, "3d6 4s: F4(3d)": 53000.0,
+        "3d6 4s: G2(3d,4s)": 9000.0, "3d6 4s: zeta(3d)": 420.0, "3d6 4s: alpha(3d)": 60.0,
+        "3d7: Eav": 33000.0, "3d7: F2(3d)": 80000.0, "3d7: F4(3d)": 50000.0,
+        "3d7: zeta(3d)": 400.0, "3d7: alpha(3d)": 55.0,
+        "3d5 4s2: Eav": 55000.0, "3d5 4s2: F2(3d)": 90000.0, "3d5 4s2: F4(3d)": 56000.0,
+        "3d5 4s2: zeta(3d)": 440.0, "3d5 4s2: alpha(3d)": 65.0,
+        "3d6 4s | 3d7: R2(3d4s,3d3d)": -4000.0, "3d6 4s | 3d5 4s2: R2(3d3d,3d4s)": -4500.0,
+        "3d7 | 3d5 4s2: R2(3d3d,4s4s)": 3000.0,
+    }
+    s = Session.new(configs, Z=26, charge=1, name="Kx II (invented iron-group ion)",
+                    title="Kestrel Ridge demo: even levels of an invented iron-group ion")
+    model = s.models["even"]
+    noise = 3.0
+    levels = synthetic_levels(model, true, noise=noise, seed=2026, max_levels=70,
+                              uncertainty=noise)
+    # the deliberate misassignment: two J = 7/2 levels swap labels
+    j72 = [lv for lv in levels if lv.J == 3.5]
+    a, b = j72[3], j72[4]
+    a.label, b.label = b.label, a.label
+    a.note = "tentative label (demo: this one is deliberately wrong)"
+    # the lowest level is the energy origin
+    shift = min(lv.energy for lv in levels)
+    for lv in levels:
+        lv.energy = round(lv.energy - shift, 2)
+        s.levels.append(lv)
+    rng = np.random.default_rng(7)
+    for name, v in true.items():
+        spec = next(p for p in model.parameter_specs if p.name == name)
+        if spec.kind == "Eav":
+            start = round(v - shift + rng.normal(0, 500), 0)
+        elif spec.kind in ("F", "G", "zeta"):
+            start = round(v * (1 + 0.06 * rng.standard_normal()), 0)
+        else:  # CI integrals and Trees corrections held at 'earlier analysis' values
+            start = v
+        s.set_parameter(name, start, vary=spec.kind in ("Eav", "F", "G", "zeta"))
+    s.note = NOTE.format(noise=noise, extra="One J = 7/2 label is wrong on purpose.")
+    return s
+
+
+def noble_gas_like() -> Session:
+    configs = ["2p5 3p", "2p5 4p"]
+    true = {
+        "2p5 3p: Eav": 150000.0, "2p5 3p: F2(2p,3p)": 3000.0, "2p5 3p: G0(2p,3p)": 850.0,
+        "2p5 3p: G2(2p,3p)": 700.0, "2p5 3p: zeta(2p)": 520.0, "2p5 3p: zeta(3p)": 10.0,
+        "2p5 4p: Eav": 160000.0, "2p5 4p: F2(2p,4p)": 1100.0, "2p5 4p: G0(2p,4p)": 240.0,
+        "2p5 4p: G2(2p,4p)": 190.0, "2p5 4p: zeta(2p)": 520.0, "2p5 4p: zeta(4p)": 4.0,
+    }
+    s = Session.new(configs, Z=10, charge=0, name="Nk I (invented neon-like atom)",
+                    title="Kestrel Ridge demo: 2p5 np levels of an invented neon-like atom")
+    model = s.models["even"]
+    noise = 0.5
+    levels = synthetic_levels(model, true, noise=noise, seed=11, uncertainty=0.5)
+    for lv in levels:
+        lv.energy = round(lv.energy, 2)
+        s.levels.append(lv)
+    rng = np.random.default_rng(3)
+    for name, v in true.items():
+        spec = next(p for p in model.parameter_specs if p.name == name)
+        start = v + 200 if spec.kind == "Eav" else v * (1 + 0.08 * rng.standard_normal())
+        s.set_parameter(name, round(start, 1), vary=True)
+    # the two zeta(2p) are linked: one core, one spin-orbit parameter
+    s.set_parameter("2p5 3p: zeta(2p)", link="zeta2p")
+    s.set_parameter("2p5 4p: zeta(2p)", s.parameters["2p5 3p: zeta(2p)"].value, link="zeta2p")
+    s.note = NOTE.format(noise=noise, extra="The levels show pair (JK) coupling.")
+    return s
+
+
+def main() -> None:
+    iron_group().save(HERE / "kestrel_iron_group.toml")
+    noble_gas_like().save(HERE / "kestrel_neon_like.toml")
+    for p in HERE.glob("*.bak"):
+        p.unlink()
+
+
+if __name__ == "__main__":
+    main()
