@@ -8,9 +8,13 @@ noisy; read ratios, not absolute numbers).
 from __future__ import annotations
 
 import argparse
+import os
 import resource
 import sys
 import time
+
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")  # small blocks: threads only add noise
+os.environ.setdefault("OMP_NUM_THREADS", "1")
 
 import numpy as np
 

@@ -59,10 +59,26 @@ class BlockAttachment:
     reference: np.ndarray | None = None  # eigenvectors at the last accepted point
     warnings: list[str] = field(default_factory=list)
 
+    def commit(self, eigen_index: np.ndarray, V: np.ndarray) -> None:
+        """Accept a point: its eigenvectors become the reference for the next matching."""
+        self.eigen_index = eigen_index
+        self.reference = V.copy()
+        self._attached_t = np.ascontiguousarray(V[:, eigen_index].T)
+        self._arange = np.arange(eigen_index.size)
+
     def follow(self, V_new: np.ndarray) -> np.ndarray:
         """Eigen indices after matching the new eigenvectors to the reference ones."""
         if self.reference is None:
             return self.eigen_index
+        if getattr(self, "_attached_t", None) is None:
+            self.commit(self.eigen_index, self.reference)
+        # usually each attached vector has one new partner with overlap > 1/2 (then the
+        # partner is unique, overlaps summing to 1); only otherwise solve the assignment
+        part = self._attached_t @ V_new
+        part *= part
+        best = part.argmax(axis=1)
+        if part[self._arange, best].min() > 0.5:
+            return best
         overlap = (self.reference.T @ V_new) ** 2
         rows, cols = linear_sum_assignment(-overlap)
         perm = np.empty_like(cols)

@@ -194,11 +194,19 @@ class FitProblem:
             self.attachments[(parity, j2)] = BlockAttachment(
                 parity, j2, [lv.id for lv in lvs], idx, V.copy()
             )
-        # residual order: included levels, in the order given
-        self._slot = {}
+        # residual order: included levels, in the order given; per block, which of its
+        # attached levels enter the residuals and where
+        row_of = {lv.id: i for i, lv in enumerate(self.included)}
+        self._plan = {}
+        self._cache: dict = {}
         for key, att in self.attachments.items():
-            for pos, lid in enumerate(att.level_ids):
-                self._slot[lid] = (key, pos)
+            parity, j2 = key
+            b = next(bb for bb in self.models[parity].blocks if bb.J2 == j2)
+            sel = np.array([p for p, lid in enumerate(att.level_ids) if lid in row_of], dtype=int)
+            rows = np.array([row_of[att.level_ids[p]] for p in sel], dtype=int)
+            cols = self.offset[parity] + b.param_index
+            grid = (rows[:, None], cols[None, :])
+            self._plan[key] = (b, rows, sel, grid)
         self.obs = np.array([lv.energy for lv in self.included])
         u = np.array(
             [lv.uncertainty if lv.uncertainty else self.options.default_uncertainty
@@ -220,29 +228,34 @@ class FitProblem:
 
     # ------------------------------------------------------------------ evaluation
     def evaluate(self, v: np.ndarray, jacobian: bool, commit: bool):
-        """Calculated energies of the included levels (and d/d variables)."""
+        """Calculated energies of the included levels (and their d/d variables)."""
         x = self.x_of(v)
-        calc = {}
-        jac_rows = {}
-        for key, att in self.attachments.items():
-            parity, j2 = key
-            model = self.models[parity]
-            b = next(bb for bb in model.blocks if bb.J2 == j2)
-            w, V, D = _solve_block(b, self._model_x(x, parity), jacobian)
-            idx = att.follow(V) if self.options.follow_eigenvectors else att.eigen_index
+        key = x.tobytes()
+        e = np.empty(len(self.included))
+        J = np.zeros((len(self.included), len(self.names))) if jacobian else None
+        for bkey, att in self.attachments.items():
+            parity = bkey[0]
+            b, rows, sel, grid = self._plan[bkey]
+            hit = self._cache.get(bkey)
+            if hit is not None and hit[0] == key and hit[4] is att.reference:
+                w, V, idx = hit[1], hit[2], hit[3]
+            else:
+                w, V, _ = _solve_block(b, self._model_x(x, parity), False)
+                idx = att.follow(V) if self.options.follow_eigenvectors else att.eigen_index
+                self._cache[bkey] = (key, w, V, idx, att.reference)
             if commit:
-                att.eigen_index = idx
-                att.reference = V.copy()
-            for pos, lid in enumerate(att.level_ids):
-                calc[lid] = w[idx[pos]]
-                if jacobian:
-                    row = np.zeros(len(self.names))
-                    row[self.offset[parity] + b.param_index] = D[idx[pos]]
-                    jac_rows[lid] = row
-        e = np.array([calc[lv.id] for lv in self.included])
+                att.commit(idx, V)
+            if not rows.size:
+                continue
+            states = idx[sel]
+            e[rows] = w[states]
+            if jacobian and b.param_index.size:
+                n = b.size
+                Vs = V[:, states]
+                VV = (Vs[:, None, :] * Vs[None, :, :]).reshape(n * n, states.size)
+                J[grid] = (b.C_flat @ VV).T
         if not jacobian:
             return e, None
-        J = np.array([jac_rows[lv.id] for lv in self.included]).reshape(len(self.included), -1)
         return e, J @ self.chain
 
     # ------------------------------------------------------------------ fit
@@ -349,8 +362,7 @@ class FitProblem:
             changed = [att.level_ids[k] for k in np.flatnonzero(new != idx)]
             if changed:
                 moved.extend(changed)
-            att.eigen_index = new
-            att.reference = V.copy()
+            att.commit(new, V)
         return moved
 
     def report(self, message: str = "values as given (no fit)") -> FitResult:
