@@ -10,7 +10,7 @@ from finefit.notation.configuration import Configuration, parse_configuration
 from finefit.radial._config import FullConfiguration, Shell, check_z, complete_configuration
 from finefit.radial.grid import DEFAULT_STEP, DEFAULT_X_MIN, RadialGrid, make_grid
 from finefit.radial.result import HartreeFockResult
-from finefit.radial.solver import HartreeFockSolver
+from finefit.radial.solver import HartreeFockSolver, deflated_eigh, operator_shift
 from finefit.radial.units import HARTREE_CM
 
 
@@ -138,7 +138,7 @@ def hydrogenic(
     for l in sorted({s.l for s in shells}):
         top = max(s.n for s in shells if s.l == l) - l - 1
         a = grid.kinetic(l) + np.diag(-Z / grid.r)
-        _, vec = linalg.eigh(a, subset_by_index=[0, top], driver="evr")
+        _, vec = deflated_eigh(a, [], top, operator_shift(Z, l))
         for i, s in enumerate(shells):
             if s.l != l:
                 continue
