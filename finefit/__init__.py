@@ -8,6 +8,7 @@ from finefit.errors import FinefitError
 from finefit.model.estimates import hydrogenic_zeta, lande_zeta
 from finefit.model.hamiltonian import Model
 from finefit.model.solution import Level, Solution
+from finefit.session import Session, load
 
 __version__ = "0.1.0"
 
@@ -15,7 +16,9 @@ __all__ = [
     "FinefitError",
     "Level",
     "Model",
+    "Session",
     "Solution",
+    "load",
     "hydrogenic_zeta",
     "lande_zeta",
 ]
