@@ -1,7 +1,8 @@
 """The only angular quantity the average-energy expression needs: (l k l'; 0 0 0)^2.
 
-Closed form of the 3-j symbol with all projections zero (Edmonds 1957, eq. 3.7.17;
-Cowan 1981, eq. 5.24): for J = l1 + l2 + l3 even and g = J/2,
+Closed form of the 3-j symbol with all projections zero (Edmonds, "Angular Momentum in
+Quantum Mechanics", 1957; section and equation numbers not checked): for
+J = l1 + l2 + l3 even and g = J/2,
 (l1 l2 l3; 0 0 0) = (-1)^g sqrt[(J-2l1)!(J-2l2)!(J-2l3)!/(J+1)!] g!/[(g-l1)!(g-l2)!(g-l3)!],
 and zero for J odd or a broken triangle.
 """

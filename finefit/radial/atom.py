@@ -8,6 +8,7 @@ from scipy import linalg
 from finefit.errors import FinefitError
 from finefit.notation.configuration import Configuration, parse_configuration
 from finefit.radial._config import FullConfiguration, Shell, check_z, complete_configuration
+from finefit.radial._threads import single_threaded_blas
 from finefit.radial.grid import DEFAULT_STEP, DEFAULT_X_MIN, RadialGrid, make_grid
 from finefit.radial.result import HartreeFockResult
 from finefit.radial.solver import HartreeFockSolver, deflated_eigh, operator_shift
@@ -69,8 +70,9 @@ def hartree_fock(
     if r_max is not None and not (isinstance(r_max, (int, float)) and r_max > 1.0):
         raise FinefitError(f"r_max={r_max!r} must be a number of bohr larger than 1", "r_max")
     full = complete_configuration(configuration, Z, charge)
-    return _solve(full, Z, charge, bool(relativistic), float(grid_step), r_max,
-                  float(tolerance), int(max_iterations))  # fmt: skip
+    with single_threaded_blas():
+        return _solve(full, Z, charge, bool(relativistic), float(grid_step), r_max,
+                      float(tolerance), int(max_iterations))  # fmt: skip
 
 
 def _solve(
@@ -94,8 +96,9 @@ def _solve(
         ) from err
 
     def solve_other(other: FullConfiguration) -> HartreeFockResult:
-        return _solve(other, Z, Z - other.n_electrons, relativistic, grid_step, r_max,
-                      tolerance, max_iterations)  # fmt: skip
+        with single_threaded_blas():
+            return _solve(other, Z, Z - other.n_electrons, relativistic, grid_step, r_max,
+                          tolerance, max_iterations)  # fmt: skip
 
     return HartreeFockResult(
         config=full,
@@ -131,7 +134,12 @@ def hydrogenic(
     )
     full = FullConfiguration(written, shells)
     extent = _r_max(shells, Z - 1) if r_max is None else float(r_max)
-    grid: RadialGrid = make_grid(Z, extent, h=grid_step, x_min=DEFAULT_X_MIN)
+    with single_threaded_blas():
+        return _hydrogenic(full, Z, make_grid(Z, extent, h=grid_step, x_min=DEFAULT_X_MIN))
+
+
+def _hydrogenic(full: FullConfiguration, Z: int, grid: RadialGrid) -> HartreeFockResult:
+    shells = full.shells
     z = np.zeros((len(shells), grid.n))
     eps = np.zeros(len(shells))
     kinetic = 0.0

@@ -1,11 +1,11 @@
 """Logarithmic radial grid, Numerov kinetic operator and fourth-order radial quadratures.
 
 The grid is r = exp(x)/Z with x uniform (step h), the usual choice for atomic
-Hartree-Fock work (Froese Fischer 1977, ch. 6): it scales with Z and crowds
+Hartree-Fock work (Froese Fischer 1977): it scales with Z and crowds
 points near the nucleus.  Radial functions are stored as y(x) with
 P(r) = sqrt(r) y(x), which turns the radial equation
 -P''/2 + [l(l+1)/(2r^2) + V] P = eps P into y'' = [(l+1/2)^2 + 2 r^2 (V - eps)] y,
-a form Numerov's method integrates to O(h^4) (Froese Fischer 1977, sec. 6-2).
+a form Numerov's method integrates to O(h^4) (Froese Fischer 1977).
 
 Conventions used everywhere in the package:
 
@@ -64,9 +64,9 @@ class RadialGrid:
 
         D is the second-difference matrix.  Its first diagonal element carries the
         inner boundary condition y(x_min - h) = c y(x_min), with c from the regular
-        solution near the nucleus P ~ r^(l+1) (1 - Z r/(l+1)) (Froese Fischer 1977,
-        sec. 6-3).  Because the Numerov average is I + h^2 D/12 with the same D, the
-        two commute and M stays symmetric.
+        solution near the nucleus P ~ r^(l+1) (1 - Z r/(l+1)) (series solution of
+        the radial equation at the origin).  Because the Numerov average is
+        I + h^2 D/12 with the same D, the two commute and M stays symmetric.
         """
         m = self._kinetic_plain.get(l)
         if m is None:

@@ -1,7 +1,7 @@
 """First-order relativistic corrections to non-relativistic orbitals (Pauli approximation).
 
 Expanding the Dirac equation in powers of alpha (Bethe & Salpeter, "Quantum Mechanics
-of One- and Two-Electron Atoms", 1957; Cowan 1981, sec. 7-? on the quasi-relativistic
+of One- and Two-Electron Atoms", 1957; Cowan 1981, the chapter on quasi-relativistic
 corrections) gives, besides spin-orbit, two spin-independent one-electron terms:
 
 * mass-velocity  H_mv = -(alpha^2/8) p^4, so that for an orbital P_nl

@@ -1,7 +1,8 @@
 """Numerical Hartree-Fock for the average energy of a configuration.
 
-Energy functional (Slater 1960, vol. II ch. 17; Cowan 1981, sec. 6-2; Froese Fischer
-1977, sec. 3-5), orbitals P_a normalised to 1, w_a electrons in subshell a:
+Energy functional (Slater 1960, "Quantum Theory of Atomic Structure", vol. II; Cowan
+1981; Froese Fischer 1977; coefficients re-derived here), orbitals P_a normalised to 1,
+w_a electrons in subshell a:
 
     E_av = sum_a w_a I(a)
          + sum_a w_a (w_a - 1)/2 [F0(aa) - (2l_a+1)/(4l_a+1) sum_{k>0} (l_a k l_a; 000)^2 Fk(aa)]
@@ -24,7 +25,7 @@ Method (our own; the ingredients are textbook):
   reflections) before diagonalising: this is the "Schmidt + eigenvalue" route.
 * The one freedom deflation leaves, the rotation of two same-l orbitals into each
   other, is fixed by the variational condition w_a eps_ba = w_b eps_ab (the symmetry
-  of the Lagrange multipliers; Froese Fischer 1977, sec. 3-6) through a Newton step on
+  of the Lagrange multipliers; Froese Fischer 1977) through a Newton step on
   the rotation angle.  Closed-closed pairs need none (energy invariant).
 * Self-consistency: Pulay's DIIS extrapolation on the orbital vectors, started from a
   Thomas-Fermi potential.
@@ -267,7 +268,7 @@ class HartreeFockSolver:
             s = block @ block.T
             w, u = np.linalg.eigh(s)
             if np.min(w) <= 1e-10:
-                raise FinefitError("orbitals became linearly dependent", str(l))
+                raise self._failure(0, "orbitals of one l became linearly dependent")
             s_half = (u / np.sqrt(w)) @ u.T
             z[idx] = (s_half @ block) * self.norm
         return z
@@ -436,10 +437,11 @@ class HartreeFockSolver:
         return out
 
     # -------------------------------------------------------------------- SCF
-    def run(self, z0: np.ndarray | None = None) -> SCFOutcome:
-        """Iterate to self-consistency with DIIS; raise FinefitError if it fails."""
+    def _iterate(
+        self, z0: np.ndarray | None, beta: float, settle: int
+    ) -> tuple[np.ndarray, int, float]:
+        """One SCF attempt: damped potential mixing, then DIIS on the orbital map."""
         z = self.start() if z0 is None else self.orthonormalise(z0)
-        history_x: list[np.ndarray] = []
         history_f: list[np.ndarray] = []
         history_r: list[np.ndarray] = []
         residual = np.inf
@@ -448,8 +450,7 @@ class HartreeFockSolver:
         damping = True
         for it in range(1, self.max_iterations + 1):
             if damping:
-                # potential mixing until the orbitals settle, then DIIS on the plain map
-                new, fock_damped = self.step(z, fock_damped, 0.4)
+                new, fock_damped = self.step(z, fock_damped, beta)
             else:
                 new, _ = self.step(z)
             if not np.all(np.isfinite(new)):
@@ -458,28 +459,42 @@ class HartreeFockSolver:
             residual = float(np.max(np.linalg.norm(diff, axis=1)) / self.norm)
             if damping:
                 z = new
-                if residual < 1e-2 or it > 60:
+                if residual < 1e-2 or it > settle:
                     damping = False
                 continue
             if residual < self.tolerance:
-                z = new
-                break
+                return new, it, residual
             if residual > 1e3 * best and it > 20:
-                history_x, history_f, history_r = [], [], []
+                history_f, history_r = [], []  # DIIS went astray: restart its history
             best = min(best, residual)
-            history_x.append(z)
             history_f.append(new)
             history_r.append(diff.ravel())
             if len(history_r) > 8:
-                history_x.pop(0)
                 history_f.pop(0)
                 history_r.pop(0)
             if len(history_r) < 2:
                 z = self.orthonormalise(z + 0.6 * diff)
                 continue
             z = self.orthonormalise(self._diis(history_f, history_r))
+        raise self._failure(self.max_iterations, f"the residual is still {residual:.2e}")
+
+    def run(self, z0: np.ndarray | None = None) -> SCFOutcome:
+        """Iterate to self-consistency; raise FinefitError if it fails.
+
+        First attempt: potential mixing (40 % new) until the orbitals settle, then DIIS.
+        If that does not converge, one more attempt from the start with heavier damping
+        (15 % new, for longer) before giving up.
+        """
+        failure: FinefitError | None = None
+        for beta, settle in ((0.4, 60), (0.15, 150)):
+            try:
+                z, it, residual = self._iterate(z0, beta, settle)
+                break
+            except FinefitError as err:
+                failure = err
         else:
-            raise self._failure(self.max_iterations, f"the residual is still {residual:.2e}")
+            assert failure is not None
+            raise failure
         fock = self.fock_matrices(z)
         h = self.grid.h
         eps = np.array([0.5 * h * float(z[i] @ fock[i] @ z[i]) for i in range(len(self.shells))])

@@ -51,7 +51,7 @@ def test_closed_shell_total_energy(closed, conf, Z, charge, ref):
 
 @pytest.mark.parametrize("conf,Z,charge,ref", CLOSED)
 def test_virial_theorem(closed, conf, Z, charge, ref):
-    # virial theorem -V/T = 2 holds exactly for HF solutions (Froese Fischer 1977, sec. 2-?;
+    # virial theorem -V/T = 2 holds exactly for HF solutions (Froese Fischer 1977;
     # Slater 1960) — from memory
     assert closed[conf].virial_ratio == pytest.approx(2.0, abs=1e-6)
 

@@ -2,8 +2,8 @@
 
 Formulas (hartree, bohr): E = -Z^2/(2 n^2); <r> = [3 n^2 - l(l+1)]/(2Z);
 <r^2> = n^2 [5 n^2 + 1 - 3 l(l+1)]/(2 Z^2); zeta = alpha^2 R_inf Z^4/(n^3 l(l+1/2)(l+1))
-in cm^-1 (Bethe & Salpeter 1957, "Quantum Mechanics of One- and Two-Electron Atoms",
-secs. 2-3 and 13; all from memory).
+in cm^-1 (Bethe & Salpeter 1957, "Quantum Mechanics of One- and Two-Electron Atoms";
+all from memory).
 """
 
 from __future__ import annotations
@@ -64,7 +64,7 @@ def test_f0_1s1s_is_five_eighths_z():
 
 # --------------------------------------------------------- independent quadrature
 def p_hydrogenic(n: int, l: int, Z: float, r: float) -> float:
-    """Analytic hydrogenic P_nl = r R_nl (Bethe & Salpeter 1957, eq. 3.17; from memory)."""
+    """Analytic hydrogenic P_nl = r R_nl (Bethe & Salpeter 1957; from memory)."""
     rho = 2.0 * Z * r / n
     count = math.factorial(n - l - 1) / (2 * n * math.factorial(n + l))
     norm = math.sqrt((2.0 * Z / n) ** 3 * count)
@@ -125,7 +125,7 @@ def test_dipole_integral_against_quadrature():
         )[0]
         assert h.dipole_integral(a, b) == pytest.approx(ref, rel=1e-6)
         assert h.dipole_integral(b, a) == pytest.approx(ref, rel=1e-6)
-    # <1s|r|2p> = 128 sqrt(6)/243 / Z bohr (Bethe & Salpeter 1957, table 13; from memory)
+    # <1s|r|2p> = 128 sqrt(6)/243 / Z bohr (Bethe & Salpeter 1957; from memory)
     assert h.dipole_integral("1s", "2p") == pytest.approx(128 * math.sqrt(6) / 243 / Z, rel=1e-6)
 
 
@@ -154,7 +154,7 @@ def test_hydrogenic_total_is_sum_of_orbital_energies():
 def test_relativistic_shift_hydrogenic(conf, Z, charge):
     n, l = _nl(conf)
     hf = hartree_fock(conf, Z, charge, relativistic=True, grid_step=0.06)
-    # mass-velocity + Darwin for hydrogen (Bethe & Salpeter 1957, sec. 12, from memory):
+    # mass-velocity + Darwin for hydrogen (Bethe & Salpeter 1957, from memory):
     # E_mv = -(alpha^2 Z^4/(2 n^4)) (n/(l+1/2) - 3/4), E_D = alpha^2 Z^4/(2 n^3) for l = 0
     mv = -(ALPHA**2 * Z**4 / (2 * n**4)) * (n / (l + 0.5) - 0.75)
     darwin = ALPHA**2 * Z**4 / (2 * n**3) if l == 0 else 0.0
