@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+import numbers
 from dataclasses import dataclass
 
 from finefit.errors import FinefitError
@@ -61,13 +63,22 @@ class FullConfiguration:
         return " ".join(s.name + (str(s.w) if s.w != 1 else "") for s in self.shells)
 
 
+def _is_whole(value: object) -> bool:
+    return (
+        isinstance(value, numbers.Real)
+        and not isinstance(value, bool)
+        and math.isfinite(value)
+        and int(value) == value
+    )
+
+
 def check_z(Z: object, charge: object) -> tuple[int, int]:
-    """Validate nuclear charge and ionic charge; return them as ints."""
-    if isinstance(Z, bool) or not isinstance(Z, (int, float)) or int(Z) != Z or not 1 <= Z <= 120:
+    """Validate nuclear charge and ionic charge (whole numbers, numpy ints accepted)."""
+    if not _is_whole(Z) or not 1 <= Z <= 120:  # type: ignore[operator]
         raise FinefitError(f"nuclear charge Z={Z!r} must be an integer from 1 to 120", "Z")
-    if isinstance(charge, bool) or not isinstance(charge, (int, float)) or int(charge) != charge:
+    if not _is_whole(charge):
         raise FinefitError(f"ionic charge {charge!r} must be an integer", "charge")
-    Z, charge = int(Z), int(charge)
+    Z, charge = int(Z), int(charge)  # type: ignore[call-overload]
     if charge >= Z:
         raise FinefitError(f"ionic charge {charge} leaves no electrons for Z={Z}", "charge")
     return Z, charge

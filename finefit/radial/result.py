@@ -6,6 +6,7 @@ parameter dictionary are in cm^-1, converted with scipy.constants); lengths in b
 
 from __future__ import annotations
 
+import re
 from collections.abc import Callable
 from typing import Any
 
@@ -17,6 +18,10 @@ from finefit.radial._config import FullConfiguration, Shell, complete_configurat
 from finefit.radial.grid import RadialGrid
 from finefit.radial.relativistic import darwin, mass_velocity
 from finefit.radial.units import ALPHA, HARTREE_CM
+
+_RK_NAME = re.compile(
+    r"^R(\d+)\((\d+[spdfghi])(\d+[spdfghi]),(\d+[spdfghi])(\d+[spdfghi])\)$"
+)
 
 _UNITS = {"cm-1": HARTREE_CM, "cm^-1": HARTREE_CM, "hartree": 1.0}
 
@@ -226,6 +231,21 @@ class HartreeFockResult:
         pd = other._p_on(other._i(d), grid)
         value = grid.rk(pa * pc, pb * pd, int(k))
         return value * _unit_factor(unit)
+
+    def interaction_parameter(self, name: str, other: HartreeFockResult | None = None) -> float:
+        """Value in cm^-1 of a named interaction integral such as ``"R2(3d3d,3d4s)"``
+        (CONVENTIONS: a, b from this result's configuration, c, d from ``other``'s);
+        a qualified name ``"<A> | <B>: R2(...)"`` is accepted, the prefix is ignored."""
+        text = name.split(":")[-1].strip()
+        m = _RK_NAME.match(text)
+        if not m:
+            raise FinefitError(
+                f"cannot read interaction parameter {name!r}: expected e.g. 'R2(3d3d,3d4s)'",
+                name,
+            )
+        k = int(m.group(1))
+        a, b, c, d = m.group(2), m.group(3), m.group(4), m.group(5)
+        return self.configuration_interaction_integral(k, a, b, c, d, other)
 
     # -------------------------------------------------------------- spin-orbit
     def screening_charge(self, orbital: str) -> np.ndarray:

@@ -201,3 +201,20 @@ def test_relativistic_option_shifts_energy(neon):
     assert rel.orbital_energy("1s") < neon.orbital_energy("1s")
     # the zeta and Slater integrals come from the same non-relativistic orbitals
     assert rel.F(0, "2p") == pytest.approx(neon.F(0, "2p"), rel=1e-9)
+
+
+def test_named_interaction_parameter(fe2):
+    d7 = fe2.result_for("3d7")
+    direct = fe2.configuration_interaction_integral(2, "3d", "4s", "3d", "3d", d7)
+    assert fe2.interaction_parameter("3d6 4s | 3d7: R2(3d4s,3d3d)", d7) == direct
+    assert fe2.interaction_parameter("R2(3d4s,3d3d)", d7) == direct
+    from finefit.errors import FinefitError
+
+    with pytest.raises(FinefitError) as err:
+        fe2.interaction_parameter("R2(3d,4s)", d7)
+    assert err.value.item == "R2(3d,4s)"
+
+
+def test_numpy_integers_accepted():
+    hf = hartree_fock("2s", np.int64(3), np.int64(0), grid_step=0.1)
+    assert hf.Z == 3 and isinstance(hf.Z, int)
