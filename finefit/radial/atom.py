@@ -64,6 +64,9 @@ def hartree_fock(
 
     Raises :class:`finefit.errors.FinefitError` for bad input (the offending token is
     ``err.item``) and when the iteration does not converge.
+
+    While it runs, OpenBLAS is capped at one thread (restored afterwards): the matrices
+    are small and threaded BLAS is much slower on a busy machine (see ``_threads``).
     """
     Z, charge = check_z(Z, charge)
     _check_options(grid_step, tolerance, max_iterations)

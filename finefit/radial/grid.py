@@ -193,7 +193,7 @@ def derivative(g: np.ndarray, h: float) -> np.ndarray:
     return d
 
 
-@lru_cache(maxsize=32)
+@lru_cache(maxsize=6)  # each grid caches a few MB of dense matrices
 def _cached_grid(Z: float, h: float, x_min: float, n: int) -> RadialGrid:
     return RadialGrid(Z, h, x_min, n)
 
