@@ -4,6 +4,12 @@ term analysis (Slater F^k, G^k, R^k, spin-orbit zeta, dipole integrals), pure co
 >>> hf = hartree_fock("3d6 4s2", Z=26)      # core 1s2 ... 3p6 inferred
 >>> hf.total_energy, hf.orbital_energy("3d"), hf.zeta("3d")
 >>> hf.parameters("3d6 4s2")                # {"3d6 4s2: Eav": ..., "3d6 4s2: F2(3d)": ...}
+
+Units: hartree and bohr for energies/lengths of the solution (``total_energy``,
+``orbital_energy``, ``expectation_r``, ``dipole_integral``); cm^-1 (scipy.constants) for
+``slater_integral``, ``F``, ``G``, ``zeta``, ``parameters`` and the interaction integrals
+unless ``unit="hartree"``.  Method and sources: :mod:`finefit.radial.solver` (HF),
+:mod:`finefit.radial.grid` (discretisation), :mod:`finefit.radial.relativistic`.
 """
 
 from finefit.radial.atom import (
