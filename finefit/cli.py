@@ -377,6 +377,13 @@ def cmd_sets(args) -> int:
     raise FinefitError(f"unknown sets action {action!r}", action)
 
 
+def cmd_workspace(args) -> int:
+    from finefit.ui.app import make_app
+
+    make_app(args.session).run()
+    return EXIT_OK
+
+
 # ----------------------------------------------------------------------------- parser
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
@@ -404,6 +411,10 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--title", help="a title for the session")
     sp.add_argument("--force", action="store_true", help="overwrite an existing file")
     sp.set_defaults(func=cmd_new)
+
+    sp = add("workspace", "open the interactive terminal workspace on a session",
+             json_flag=False)
+    sp.set_defaults(func=cmd_workspace)
 
     sp = add("fit", "fit the varied parameters to the included levels")
     sp.add_argument("--write", action="store_true", help="store the fitted values in the session")

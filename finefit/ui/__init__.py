@@ -1,0 +1,1 @@
+"""The terminal workspace (Textual). A thin layer over finefit.session and finefit.workspace."""

@@ -1,0 +1,774 @@
+"""The finefit workspace: observed levels, parameters and pictures, refitted live.
+
+All physics and file handling come from finefit.session / finefit.workspace; this
+module only shows their state and turns keys into edits. Fits run in a thread worker
+(a newer edit cancels a running fit; a generation counter drops stale results).
+"""
+
+from __future__ import annotations
+
+from functools import partial
+from pathlib import Path
+
+from rich.text import Text
+from textual import work
+from textual.app import App, ComposeResult, SystemCommand
+from textual.binding import Binding
+from textual.containers import Horizontal, VerticalScroll
+from textual.coordinate import Coordinate
+from textual.screen import ModalScreen
+from textual.widgets import DataTable, Footer, Header, Static, TabbedContent, TabPane
+from textual.worker import get_current_worker
+
+from finefit.errors import FinefitError
+from finefit.fitting.fit import FitCancelled
+from finefit.fitting.results import FitResult
+from finefit.notation.jvalues import format_j
+from finefit.session import Session
+from finefit.ui import pictures
+from finefit.ui.commands import COMMANDS
+from finefit.ui.screens import ChoiceScreen, FormScreen, HelpScreen, PickScreen
+from finefit.workspace import Workspace
+
+SORTS = ("energy", "|O-C|", "id", "J")
+
+
+def _bindings() -> list[Binding]:
+    out = []
+    for c in COMMANDS:
+        out.append(Binding(c.keys, c.action, c.title, show=c.show,
+                           id=c.action.split("(")[0] + (c.action[c.action.find("("):]
+                                                       if "(" in c.action else "")))
+    return out
+
+
+class WorkspaceApp(App):
+    """Interactive term analysis of one session file."""
+
+    CSS_PATH = "finefit.tcss"
+    TITLE = "finefit"
+    BINDINGS = _bindings()
+
+    def __init__(self, workspace: Workspace, offer_recovery: bool = False) -> None:
+        super().__init__()
+        self.ws = workspace
+        self.offer_recovery = offer_recovery
+        self.result: FitResult | None = None
+        self.previous_sigma: float | None = None
+        self.fit_running = False
+        self.fit_error: str | None = None
+        self.message = ""
+        self.sort_mode = 0
+        self.filter_text = ""
+        self.outliers_only = False
+        self.detail_visible = True
+        self.fits_done = 0
+
+    # ------------------------------------------------------------------ layout
+    def compose(self) -> ComposeResult:
+        yield Header(show_clock=False)
+        with TabbedContent(initial="levels", id="tabs"):
+            with TabPane("Levels", id="levels"):
+                with Horizontal(id="levels-row"):
+                    yield DataTable(id="levels-table", cursor_type="row", zebra_stripes=True)
+                    with VerticalScroll(id="detail"):
+                        yield Static("", id="detail-text", markup=False)
+            with TabPane("Parameters", id="params"):
+                yield DataTable(id="params-table", cursor_type="row", zebra_stripes=True)
+            with TabPane("Correlations", id="corr"):
+                yield DataTable(id="corr-table", cursor_type="cell")
+            with TabPane("O-C plot", id="resid"):
+                yield Static("", id="resid-plot", markup=False)
+            with TabPane("Diagram", id="diagram"):
+                yield Static("", id="diagram-plot", markup=False)
+        yield Static("", id="status", markup=False)
+        yield Footer()
+
+    def on_mount(self) -> None:
+        s = self.ws.session
+        self.sub_title = f"{s.path.name if s.path else 'unsaved'} — {', '.join(s.configurations)}"
+        lt = self.query_one("#levels-table", DataTable)
+        for key, label in (("id", "id"), ("label", "label"),
+                           ("J", "J"), ("par", "p"), ("eobs", "E obs"), ("ecalc", "E calc"),
+                           ("oc", "O-C"), ("pur", "%LS"), ("lead", "leading (best scheme)"),
+                           ("gc", "g calc"), ("go", "g obs"), ("flags", "")):
+            lt.add_column(label, key=key)
+        pt = self.query_one("#params-table", DataTable)
+        for key, label in (("name", "parameter"), ("value", "value"), ("err", "± error"),
+                           ("state", "status"), ("link", "link"), ("bounds", "bounds"),
+                           ("ratio", "ratio"), ("to", "to")):
+            pt.add_column(label, key=key)
+        self.detail_visible = self.size.width >= 110
+        self._apply_detail_visibility()
+        self.refresh_all()
+        if self.offer_recovery:
+            self.push_screen(
+                ChoiceScreen(
+                    "Unsaved changes from an earlier session were found in the autosave "
+                    "journal. Recover them?",
+                    [("r", "recover"), ("d", "discard")],
+                ),
+                self._recovery_answer,
+            )
+        else:
+            self.schedule_fit()
+
+    def _recovery_answer(self, answer: str | None) -> None:
+        path = self.ws.session.path
+        if answer == "r" and path is not None:
+            self.ws = Workspace.recover(path)
+            self.message = "recovered the unsaved changes from the journal (not yet saved)"
+        else:
+            self.ws.discard_journal()
+            self.message = "discarded the autosave journal"
+        self.refresh_all()
+        self.schedule_fit()
+
+    # ------------------------------------------------------------------ fitting
+    def schedule_fit(self) -> None:
+        gen = self.ws.generation
+        try:
+            problem = self.ws.session.problem()
+        except FinefitError as exc:
+            self.fit_error = str(exc)
+            self.fit_running = False
+            self.update_status()
+            return
+        self.fit_error = None
+        self.fit_running = True
+        self.update_status()
+        self._fit_worker(problem, gen)
+
+    @work(thread=True, exclusive=True, group="fit", exit_on_error=False)
+    def _fit_worker(self, problem, generation: int) -> None:
+        worker = get_current_worker()
+        try:
+            result = problem.fit(should_stop=lambda: worker.is_cancelled)
+        except FitCancelled:
+            return
+        except Exception as exc:  # noqa: BLE001 - shown in the status line, never a crash
+            self.call_from_thread(self._fit_failed, generation, exc)
+            return
+        if not worker.is_cancelled:
+            self.call_from_thread(self._fit_done, generation, result)
+
+    def _fit_failed(self, generation: int, exc: Exception) -> None:
+        if generation != self.ws.generation:
+            return
+        self.fit_running = False
+        self.fit_error = f"{type(exc).__name__}: {exc}"
+        self.update_status()
+
+    def _fit_done(self, generation: int, result: FitResult) -> None:
+        if generation != self.ws.generation:
+            return  # an edit came after this fit started: a newer fit is on its way
+        self.fit_running = False
+        if self.result is not None:
+            self.previous_sigma = self.result.sigma
+        self.result = result
+        self.fits_done += 1
+        self.refresh_all()
+
+    # ------------------------------------------------------------------ refreshing
+    def refresh_all(self) -> None:
+        self.refresh_levels()
+        self.refresh_params()
+        self.refresh_pictures()
+        self.refresh_detail()
+        self.update_status()
+
+    def _rows_by_id(self) -> dict:
+        return {row.id: row for row in self.result.levels} if self.result else {}
+
+    def visible_levels(self) -> list:
+        rows = self._rows_by_id()
+        sigma = self.result.sigma if self.result and self.result.sigma else None
+        out = []
+        for lv in self.ws.session.levels:
+            row = rows.get(lv.id)
+            if self.outliers_only:
+                if row is None or sigma is None or abs(row.residual) <= 2 * sigma:
+                    continue
+            if self.filter_text and not self._matches(lv, row):
+                continue
+            out.append((lv, row))
+        mode = SORTS[self.sort_mode]
+        if mode == "energy":
+            out.sort(key=lambda t: t[0].energy)
+        elif mode == "|O-C|":
+            out.sort(key=lambda t: -abs(t[1].residual) if t[1] else 0.0)
+        elif mode == "J":
+            out.sort(key=lambda t: (t[0].J, t[0].energy))
+        return out
+
+    def _matches(self, lv, row) -> bool:
+        for token in self.filter_text.split():
+            key, _, value = token.partition("=")
+            if value:
+                key = key.lower()
+                if key in ("j",):
+                    if format_j(lv.J) != value and str(lv.J) != value:
+                        return False
+                elif key in ("p", "parity"):
+                    if not lv.parity.startswith(value.lower()):
+                        return False
+                elif key in ("c", "conf", "configuration"):
+                    conf = (lv.configuration or (row.configuration if row else "")).replace(" ", "")
+                    if value.replace(" ", "") != conf:
+                        return False
+                else:
+                    return False
+            else:
+                hay = " ".join([lv.id, lv.label or "", lv.configuration or "",
+                                row.calc_label if row else ""]).lower()
+                if token.lower() not in hay:
+                    return False
+        return True
+
+    def refresh_levels(self) -> None:
+        table = self.query_one("#levels-table", DataTable)
+        keep = self.selected_level_id()
+        table.clear()
+        sigma = self.result.sigma if self.result and self.result.sigma else None
+        for lv, row in self.visible_levels():
+            flags = []
+            if not lv.include:
+                flags.append("excl")
+            if lv.state is not None:
+                flags.append("pin")
+            oc = Text("")
+            if row is not None:
+                q = abs(row.residual) / sigma if sigma else 0.0
+                mark = " !!" if q > 3 else (" !" if q > 2 else "")
+                style = "bold red" if q > 3 else ("yellow" if q > 2 else "")
+                oc = Text(f"{row.residual:9.2f}{mark}", style=style)
+                if row.label_mismatch:
+                    flags.append("≠label")
+            table.add_row(
+                Text(lv.id),
+                Text(lv.label or f"({lv.configuration or (row.configuration if row else '?')})"),
+                Text(format_j(lv.J), justify="right"),
+                Text("e" if lv.parity == "even" else "o"),
+                Text(f"{lv.energy:.3f}", justify="right"),
+                Text(f"{row.energy_calc:.3f}" if row else "", justify="right"),
+                oc,
+                Text(f"{100 * row.purity:.0f}" if row else "", justify="right"),
+                Text(
+                    f"{100 * row.components[0][1]:.0f}% {row.components[0][0]} ({row.best_scheme})"
+                    if row and row.components else ""
+                ),
+                Text(f"{row.g_calc:.4f}" if row else "", justify="right"),
+                Text("" if lv.g is None else f"{lv.g:.3f}", justify="right"),
+                Text(" ".join(flags), style="dim"),
+                key=lv.id,
+            )
+        if keep is not None:
+            self.select_level(keep)
+
+    def selected_level_id(self) -> str | None:
+        table = self.query_one("#levels-table", DataTable)
+        if table.row_count == 0:
+            return None
+        try:
+            key = table.coordinate_to_cell_key(Coordinate(table.cursor_row, 0)).row_key
+        except Exception:  # noqa: BLE001 - empty or shrinking table
+            return None
+        return key.value
+
+    def select_level(self, level_id: str) -> None:
+        table = self.query_one("#levels-table", DataTable)
+        try:
+            table.move_cursor(row=table.get_row_index(level_id))
+        except Exception:  # noqa: BLE001 - filtered out
+            pass
+
+    def selected_parameter(self) -> str | None:
+        table = self.query_one("#params-table", DataTable)
+        if table.row_count == 0:
+            return None
+        return table.coordinate_to_cell_key(Coordinate(table.cursor_row, 0)).row_key.value
+
+    def refresh_params(self) -> None:
+        table = self.query_one("#params-table", DataTable)
+        keep = table.cursor_row if table.row_count else 0
+        table.clear()
+        r = self.result
+        for name, p in self.ws.session.parameters.items():
+            value = r.values.get(name, p.value) if r else p.value
+            status = r.status.get(name, "") if r else ("vary" if p.vary else "fixed")
+            err = ""
+            if r:
+                e = r.errors.get(name, 0.0)
+                err = {"fixed": "", "at bound": "at bound", "undetermined": "undetermined"}.get(
+                    status, f"{e:.2f}")
+            ratio = r.ratios.get(name) if r else None
+            bounds = ""
+            if p.min is not None or p.max is not None:
+                bounds = f"[{'' if p.min is None else f'{p.min:g}'}, " \
+                         f"{'' if p.max is None else f'{p.max:g}'}]"
+            setting = "vary" if p.vary else "fixed"
+            table.add_row(
+                Text(name), Text(f"{value:.2f}", justify="right"), Text(err, justify="right"),
+                Text(f"{setting} / {status}" if r and status not in ("varied", "fixed") else
+                     setting),
+                Text(p.link or ""), Text(bounds),
+                Text("" if ratio is None else f"{ratio:.3f}", justify="right"),
+                Text(r.ratio_reference.get(name, "") if r and ratio is not None else ""),
+                key=name,
+            )
+        if table.row_count:
+            table.move_cursor(row=min(keep, table.row_count - 1))
+
+    def refresh_pictures(self) -> None:
+        r = self.result
+        corr = self.query_one("#corr-table", DataTable)
+        corr.clear(columns=True)
+        w = max(self.size.width - 2, 40)
+        h = max(self.size.height - 8, 10)
+        if r is None:
+            self.query_one("#resid-plot", Static).update(Text("no fit yet"))
+            self.query_one("#diagram-plot", Static).update(Text("no fit yet"))
+            return
+        names, cells = pictures.correlation_cells(r, self.ws.session.options.correlation_threshold)
+        corr.add_column("", key="name")
+        for i, n in enumerate(names):
+            corr.add_column(Text(n), key=f"c{i}")
+        for i, n in enumerate(names):
+            corr.add_row(Text(n), *cells[i], key=f"r{i}")
+        self.query_one("#resid-plot", Static).update(pictures.residual_plot(r, w, h))
+        self.query_one("#diagram-plot", Static).update(pictures.level_diagram(r, w, h))
+
+    def refresh_detail(self) -> None:
+        static = self.query_one("#detail-text", Static)
+        lid = self.selected_level_id()
+        r = self.result
+        if lid is None or r is None:
+            static.update(Text("select a level" if r else "fitting…"))
+            return
+        row = self._rows_by_id().get(lid)
+        if row is None:
+            static.update(Text(f"{lid}: not attached"))
+            return
+        sol = r.solutions[row.parity]
+        lev = next(x for x in sol.levels
+                   if x.block == round(2 * row.J) and x.position == row.state_rank - 1)
+        width = 40
+        out = Text()
+        out.append(f"{row.id}  J = {format_j(row.J)}  {row.parity}\n", style="bold")
+        out.append(f"E obs {row.energy_obs:.3f}   E calc {row.energy_calc:.3f} "
+                   f"± {row.calc_uncertainty:.2f}\nO-C {row.residual:.3f}   "
+                   f"g calc {row.g_calc:.4f}")
+        out.append(f"   g obs {row.g_obs:.3f}\n" if row.g_obs is not None else "\n")
+        out.append(f"state {row.state_rank} of its J; label {row.label or '—'}\n")
+        for scheme in ("LS", "jj", "JK"):
+            comps = [(c.label, c.fraction) for c in sol.composition(lev, scheme, top=4)]
+            out.append(f"\n{scheme} coupling", style="bold underline")
+            out.append(" (best)\n" if scheme == row.best_scheme else "\n")
+            out.append(pictures.composition_bars(comps, width))
+        out.append("\nnearest computed states\n", style="bold underline")
+        near = sorted(sol.levels, key=lambda x: abs(x.energy - row.energy_calc))[1:6]
+        for x in near:
+            out.append(f"{x.energy - row.energy_calc:+9.1f}  J={format_j(x.J):>4}  {x.label}\n")
+        static.update(out)
+
+    def update_status(self) -> None:
+        r = self.result
+        parts = []
+        if r is not None:
+            sig = "—" if r.sigma is None else f"{r.sigma:.3f}"
+            delta = ""
+            if r.sigma is not None and self.previous_sigma is not None:
+                delta = f" (Δ {r.sigma - self.previous_sigma:+.3f})"
+            parts.append(f"σ = {sig} cm-1{delta}")
+            parts.append(f"N = {r.n_levels}  free = {r.n_free}  eval = {r.iterations}")
+            parts.append("converged" if r.converged else "NOT CONVERGED")
+        if self.fit_running:
+            parts.append("fitting…")
+        if self.fit_error:
+            parts.append(f"cannot fit: {self.fit_error}")
+        if self.ws.dirty:
+            parts.append("unsaved")
+        if self.filter_text or self.outliers_only:
+            parts.append(f"filter: {self.filter_text or ''}{' outliers' if self.outliers_only else ''}")
+        if SORTS[self.sort_mode] != "energy":
+            parts.append(f"sort: {SORTS[self.sort_mode]}")
+        if self.message:
+            parts.append(self.message)
+        style = "bold red" if (self.fit_error or (r is not None and not r.converged)) else ""
+        self.query_one("#status", Static).update(Text("  │  ".join(parts), style=style))
+
+    # ------------------------------------------------------------------ events
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        if event.data_table.id == "levels-table":
+            self.refresh_detail()
+
+    def on_resize(self, event) -> None:
+        if self.result is not None:
+            self.refresh_pictures()
+
+    # ------------------------------------------------------------------ helpers
+    def _modal_open(self) -> bool:
+        return isinstance(self.screen, ModalScreen)
+
+    def _tab(self) -> str:
+        return self.query_one(TabbedContent).active
+
+    def apply_edit(self, description: str, change) -> bool:
+        """One undoable edit; a bad value changes nothing and says why."""
+        try:
+            self.ws.edit(description, change)
+        except FinefitError as exc:
+            self.message = ""
+            self.notify(str(exc), title="not changed", severity="error", timeout=6)
+            self.update_status()
+            return False
+        self.message = description
+        self.refresh_levels()
+        self.refresh_params()
+        self.schedule_fit()
+        return True
+
+    # ------------------------------------------------------------------ actions
+    def action_toggle_include(self) -> None:
+        if self._modal_open() or self._tab() != "levels":
+            return
+        lid = self.selected_level_id()
+        if lid is None:
+            return
+        lv = self.ws.session.level(lid)
+        self.apply_edit(f"{'excluded' if lv.include else 'included'} {lid}",
+                        lambda s: s.update_level(lid, include=not lv.include))
+
+    def action_reattach(self) -> None:
+        if self._modal_open() or self._tab() != "levels" or self.result is None:
+            return
+        lid = self.selected_level_id()
+        if lid is None:
+            return
+        lv = self.ws.session.level(lid)
+        sol = self.result.solutions[lv.parity]
+        states = [x for x in sol.levels if x.block == round(2 * lv.J)]
+        states.sort(key=lambda x: x.position)
+        owner = {(row.state_rank): row.id for row in self.result.levels
+                 if row.parity == lv.parity and row.J == lv.J}
+        options = [Text("let the fit choose (by label, then energy order)")]
+        highlight = 0
+        for x in states:
+            comps = sol.composition(x, "LS", top=2)
+            who = owner.get(x.position + 1)
+            t = Text(f"#{x.position + 1:<3} {x.energy:11.2f}  ")
+            t.append("  ".join(f"{100 * c.fraction:.0f}% {c.label}" for c in comps))
+            if who:
+                t.append(f"   [{who}]", style="bold" if who == lid else "dim")
+                if who == lid:
+                    highlight = x.position + 1
+            options.append(t)
+
+        def chosen(index: int | None) -> None:
+            if index is None:
+                return
+            state = None if index == 0 else index
+            self.apply_edit(f"attached {lid} to state {state or 'by label'}",
+                            lambda s: s.attach(lid, state))
+
+        self.push_screen(
+            PickScreen(f"Attach {lid} (J = {format_j(lv.J)}, {lv.parity}) to:", options,
+                       highlight), chosen)
+
+    def action_edit(self) -> None:
+        if self._modal_open():
+            return
+        if self._tab() == "levels":
+            self._edit_level()
+        elif self._tab() == "params":
+            self._edit_parameter()
+
+    def _edit_level(self) -> None:
+        lid = self.selected_level_id()
+        if lid is None:
+            return
+        lv = self.ws.session.level(lid)
+        fields = [("energy", "energy (cm-1)", f"{lv.energy!r}"),
+                  ("uncertainty", "uncertainty (cm-1, empty = none)",
+                   "" if lv.uncertainty is None else f"{lv.uncertainty!r}"),
+                  ("label", "label (empty = none)", lv.label or "")]
+
+        def done(values: dict | None) -> None:
+            if values is None:
+                return
+            try:
+                energy = float(values["energy"])
+                unc = float(values["uncertainty"]) if values["uncertainty"].strip() else None
+            except ValueError:
+                self.notify(f"{values['energy']!r} / {values['uncertainty']!r}: energy and "
+                            "uncertainty must be numbers", title="not changed", severity="error")
+                return
+            label = values["label"].strip() or None
+            self.apply_edit(f"edited {lid}", lambda s: s.update_level(
+                lid, energy=energy, uncertainty=unc, label=label))
+
+        self.push_screen(FormScreen(f"Edit level {lid}", fields), done)
+
+    def _edit_parameter(self) -> None:
+        name = self.selected_parameter()
+        if name is None:
+            return
+        p = self.ws.session.parameters[name]
+        fields = [("value", "value (cm-1)", f"{p.value!r}"),
+                  ("min", "lower bound (empty = none)", "" if p.min is None else f"{p.min!r}"),
+                  ("max", "upper bound (empty = none)", "" if p.max is None else f"{p.max!r}")]
+
+        def done(values: dict | None) -> None:
+            if values is None:
+                return
+            try:
+                value = float(values["value"])
+                lo = float(values["min"]) if values["min"].strip() else None
+                hi = float(values["max"]) if values["max"].strip() else None
+            except ValueError:
+                self.notify("value and bounds must be numbers", title="not changed",
+                            severity="error")
+                return
+            self.apply_edit(f"edited {name}",
+                            lambda s: s.set_parameter(name, value, min=lo, max=hi))
+
+        self.push_screen(FormScreen(f"Edit {name}", fields), done)
+
+    def action_add_level(self) -> None:
+        if self._modal_open():
+            return
+        s = self.ws.session
+        fields = [("energy", "energy (cm-1)", ""), ("J", "J (e.g. 5/2)", ""),
+                  ("parity", "parity (even/odd)", next(iter(s.models))),
+                  ("configuration", "configuration (optional)", ""),
+                  ("label", "label (optional)", ""), ("uncertainty", "uncertainty (optional)", "")]
+
+        def done(values: dict | None) -> None:
+            if values is None:
+                return
+            unc = values["uncertainty"].strip()
+            try:
+                unc_v = float(unc) if unc else None
+            except ValueError:
+                self.notify(f"uncertainty {unc!r} is not a number", severity="error",
+                            title="not added")
+                return
+            self.apply_edit("added a level", lambda s: s.add_level(
+                energy=values["energy"], J=values["J"], parity=values["parity"].strip(),
+                configuration=values["configuration"].strip() or None,
+                label=values["label"].strip() or None, uncertainty=unc_v))
+
+        self.push_screen(FormScreen("Add an observed level", fields), done)
+
+    def action_delete_level(self) -> None:
+        if self._modal_open() or self._tab() != "levels":
+            return
+        lid = self.selected_level_id()
+        if lid is None:
+            return
+
+        def answer(a: str | None) -> None:
+            if a == "y":
+                self.apply_edit(f"deleted {lid}", lambda s: s.remove_level(lid))
+
+        self.push_screen(ChoiceScreen(f"Delete level {lid}? (undo brings it back)",
+                                      [("y", "delete"), ("n", "keep")]), answer)
+
+    def action_toggle_vary(self) -> None:
+        if self._modal_open() or self._tab() != "params":
+            return
+        name = self.selected_parameter()
+        if name is None:
+            return
+        vary = not self.ws.session.parameters[name].vary
+        self.apply_edit(f"{'varying' if vary else 'fixed'} {name}",
+                        lambda s: s.set_parameter(name, vary=vary))
+
+    def action_link(self) -> None:
+        if self._modal_open() or self._tab() != "params":
+            return
+        name = self.selected_parameter()
+        if name is None:
+            return
+        p = self.ws.session.parameters[name]
+
+        def done(values: dict | None) -> None:
+            if values is None:
+                return
+            group = values["group"].strip() or None
+            self.apply_edit(f"{name} {'in link group ' + group if group else 'unlinked'}",
+                            lambda s: s.set_parameter(name, link=group))
+
+        self.push_screen(FormScreen(f"Link group of {name}", [
+            ("group", "group name (empty = not linked)", p.link or "")],
+            note="Parameters of one group vary together, keeping the ratios they have "
+                 "when the fit starts."), done)
+
+    def action_undo(self) -> None:
+        if self._modal_open():
+            return
+        d = self.ws.undo()
+        self.message = f"undone: {d}" if d else "nothing to undo"
+        self.refresh_levels()
+        self.refresh_params()
+        if d:
+            self.schedule_fit()
+        else:
+            self.update_status()
+
+    def action_redo(self) -> None:
+        if self._modal_open():
+            return
+        d = self.ws.redo()
+        self.message = f"redone: {d}" if d else "nothing to redo"
+        self.refresh_levels()
+        self.refresh_params()
+        if d:
+            self.schedule_fit()
+        else:
+            self.update_status()
+
+    def action_refit(self) -> None:
+        if not self._modal_open():
+            self.schedule_fit()
+
+    def action_save(self) -> None:
+        if self._modal_open():
+            return
+        try:
+            p = self.ws.save()
+        except (FinefitError, OSError) as exc:
+            self.notify(str(exc), title="not saved", severity="error")
+            return
+        self.message = f"saved {p.name}"
+        self.update_status()
+
+    def action_keep_set(self) -> None:
+        if self._modal_open() or self.result is None:
+            return
+        result = self.result
+
+        def done(values: dict | None) -> None:
+            if values is None:
+                return
+            name = values["name"].strip()
+            self.apply_edit(f"kept set {name!r}", lambda s: s.keep(result, name))
+
+        self.push_screen(FormScreen("Keep the current fit as a parameter set",
+                                    [("name", "name", "")]), done)
+
+    def action_load_set(self) -> None:
+        if self._modal_open():
+            return
+        sets = self.ws.session.parameter_sets
+        if not sets:
+            self.notify("no saved parameter sets yet (k keeps the current fit)")
+            return
+        options = [Text(f"{ps.name}   σ = {ps.sigma if ps.sigma is None else f'{ps.sigma:.3f}'}"
+                        f"   N = {ps.n_levels}   free = {ps.n_free}   {ps.created}")
+                   for ps in sets]
+
+        def chosen(i: int | None) -> None:
+            if i is None:
+                return
+            name = sets[i].name
+            self.apply_edit(f"started from set {name!r}", lambda s: s.use_set(name))
+
+        self.push_screen(PickScreen("Start from a saved parameter set:", options), chosen)
+
+    def action_filter(self) -> None:
+        if self._modal_open():
+            return
+
+        def done(values: dict | None) -> None:
+            if values is None:
+                return
+            self.filter_text = values["filter"].strip()
+            self.refresh_levels()
+            self.update_status()
+
+        self.push_screen(FormScreen("Filter levels", [("filter", "filter", self.filter_text)],
+                                    note="Words match id, label or configuration; also "
+                                         "c=3d7  J=5/2  p=odd. Empty shows all."), done)
+
+    def action_toggle_outliers(self) -> None:
+        if self._modal_open():
+            return
+        self.outliers_only = not self.outliers_only
+        self.refresh_levels()
+        self.update_status()
+
+    def action_cycle_sort(self) -> None:
+        if self._modal_open():
+            return
+        self.sort_mode = (self.sort_mode + 1) % len(SORTS)
+        self.refresh_levels()
+        self.update_status()
+
+    def _apply_detail_visibility(self) -> None:
+        self.query_one("#detail").display = self.detail_visible
+
+    def action_toggle_detail(self) -> None:
+        if self._modal_open():
+            return
+        self.detail_visible = not self.detail_visible
+        self._apply_detail_visibility()
+        self.refresh_detail()
+
+    def action_show_tab(self, name: str) -> None:
+        if self._modal_open():
+            return
+        self.query_one(TabbedContent).active = name
+        if name == "params":
+            self.query_one("#params-table").focus()
+        elif name == "levels":
+            self.query_one("#levels-table").focus()
+        elif name == "corr":
+            self.query_one("#corr-table").focus()
+
+    def action_help(self) -> None:
+        if not isinstance(self.screen, HelpScreen):
+            self.push_screen(HelpScreen())
+
+    def action_quit_workspace(self) -> None:
+        if self._modal_open():
+            return
+        if not self.ws.dirty:
+            self.ws.discard_journal()
+            self.exit()
+            return
+
+        def answer(a: str | None) -> None:
+            if a == "s":
+                try:
+                    self.ws.save()
+                except (FinefitError, OSError) as exc:
+                    self.notify(str(exc), title="not saved", severity="error")
+                    return
+                self.exit()
+            elif a == "d":
+                self.ws.discard_journal()
+                self.exit()
+
+        self.push_screen(ChoiceScreen("There are unsaved changes. Save before leaving?",
+                                      [("s", "save and quit"), ("d", "discard and quit"),
+                                       ("c", "cancel")]), answer)
+
+    def get_system_commands(self, screen):
+        yield from super().get_system_commands(screen)
+        for c in COMMANDS:
+            yield SystemCommand(c.title, c.help, partial(self.run_action, c.action))
+
+
+def make_app(path: str | Path) -> WorkspaceApp:
+    """The workspace for one session file (used by the command line and the tests)."""
+    p = Path(path)
+    pending = Workspace.pending_journal(p)
+    if not p.exists() and pending is None:
+        raise FinefitError(f"session file {str(p)!r} does not exist", str(p))
+    if p.exists():
+        ws = Workspace(Session.load(p))
+    else:
+        ws = Workspace.recover(p)
+        pending = None
+    return WorkspaceApp(ws, offer_recovery=pending is not None)

@@ -1,0 +1,166 @@
+"""Pictures drawn with text: O-C against energy, a level diagram, a correlation heatmap.
+
+Pure functions from fit results to rich Text, so they work in any terminal (16 colours,
+NO_COLOR: every mark also has a distinct character).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from rich.text import Text
+
+from finefit.fitting.results import FitResult
+from finefit.notation.jvalues import format_j
+
+
+def residual_plot(r: FitResult, width: int, height: int) -> Text:
+    """O-C (cm-1) against observed energy; excluded levels as 'x', |O-C| > 3 sigma as '#'."""
+    rows = r.levels
+    if not rows:
+        return Text("no observed levels")
+    width = max(width, 30)
+    height = max(height, 8)
+    left = 10
+    pw, ph = width - left - 1, height - 3
+    e = np.array([row.energy_obs for row in rows])
+    oc = np.array([row.residual for row in rows])
+    lim = max(float(np.max(np.abs(oc))), 1e-9) * 1.1
+    emin, emax = float(e.min()), float(e.max())
+    span = max(emax - emin, 1e-9)
+    grid = [[" "] * pw for _ in range(ph)]
+    styles = [[""] * pw for _ in range(ph)]
+    zero = int(round((ph - 1) / 2))
+    for x in range(pw):
+        grid[zero][x] = "─"
+        styles[zero][x] = "dim"
+    sigma = r.sigma or 0.0
+    for row, ei, oi in zip(rows, e, oc, strict=True):
+        x = int(round((ei - emin) / span * (pw - 1)))
+        y = int(round((1 - (oi + lim) / (2 * lim)) * (ph - 1)))
+        y = min(max(y, 0), ph - 1)
+        if not row.included:
+            ch, st = "x", "dim"
+        elif sigma and abs(oi) > 3 * sigma:
+            ch, st = "#", "bold red"
+        elif sigma and abs(oi) > 2 * sigma:
+            ch, st = "+", "yellow"
+        else:
+            ch, st = "o", "cyan"
+        grid[y][x] = ch
+        styles[y][x] = st
+    out = Text()
+    out.append("O-C (cm-1) against E obs (cm-1)   o fitted  + >2σ  # >3σ  x excluded\n",
+               style="bold")
+    for y in range(ph):
+        val = lim - 2 * lim * y / max(ph - 1, 1)
+        label = f"{val:9.1f} " if y in (0, zero, ph - 1) else " " * left
+        out.append(label[:left])
+        out.append("│")
+        for x in range(pw):
+            out.append(grid[y][x], style=styles[y][x] or None)
+        out.append("\n")
+    out.append(" " * left + "└" + "─" * pw + "\n")
+    lo, hi = f"{emin:.0f}", f"{emax:.0f}"
+    out.append(" " * (left + 1) + lo + " " * max(pw - len(lo) - len(hi), 1) + hi)
+    return out
+
+
+def level_diagram(r: FitResult, width: int, height: int, max_columns: int = 12) -> Text:
+    """Levels by configuration and J: calculated '─', observed '━' (excluded '┄')."""
+    columns: dict[tuple[str, float], list[tuple[float, str]]] = {}
+    for row in r.levels:
+        key = (row.configuration, row.J)
+        columns.setdefault(key, []).append((row.energy_calc, "calc"))
+        columns[key].append((row.energy_obs, "obs" if row.included else "excl"))
+    for p in r.predictions:
+        columns.setdefault((p.configuration, p.J), []).append((p.energy, "pred"))
+    if not columns:
+        return Text("nothing to draw")
+    keys = sorted(columns, key=lambda k: (k[0], k[1]))[:max_columns]
+    energies = [e for k in keys for e, _ in columns[k]]
+    emin, emax = min(energies), max(energies)
+    span = max(emax - emin, 1e-9)
+    left = 9
+    colw = max(5, min(9, (width - left) // max(len(keys), 1)))
+    ph = max(height - 4, 6)
+    grid = [[" "] * (colw * len(keys)) for _ in range(ph)]
+    styles = [[""] * (colw * len(keys)) for _ in range(ph)]
+    marks = {"calc": ("─", "cyan"), "obs": ("━", "bold"), "excl": ("┄", "dim"),
+             "pred": ("╌", "magenta")}
+    for c, key in enumerate(keys):
+        for e, kind in sorted(columns[key], key=lambda t: t[1] != "obs"):
+            y = int(round((1 - (e - emin) / span) * (ph - 1)))
+            ch, st = marks[kind]
+            x0 = c * colw
+            half = (colw - 1) // 2
+            xs = range(x0, x0 + half) if kind in ("calc", "pred") else range(
+                x0 + half, x0 + colw - 1)
+            for x in xs:
+                grid[y][x] = ch
+                styles[y][x] = st
+    out = Text()
+    out.append("levels by configuration and J   ─ calc  ━ obs  ┄ excluded  ╌ predicted\n",
+               style="bold")
+    for y in range(ph):
+        val = emax - span * y / max(ph - 1, 1)
+        out.append(f"{val:8.0f} " if y % 4 == 0 else " " * left)
+        for x in range(len(grid[y])):
+            out.append(grid[y][x], style=styles[y][x] or None)
+        out.append("\n")
+    out.append(" " * left)
+    for key in keys:
+        out.append(f"J={format_j(key[1])}".ljust(colw)[:colw])
+    out.append("\n" + " " * left)
+    for key in keys:
+        out.append(key[0].replace(" ", "")[: colw - 1].ljust(colw))
+    return out
+
+
+def correlation_cells(r: FitResult, threshold: float) -> tuple[list[str], list[list[Text]]]:
+    """Short names and coloured cells of the correlation matrix; strong ones marked '*'."""
+    names, corr = r.correlation
+    short = [n.split(": ", 1)[-1] if ": " in n else n for n in names]
+    short = [s if len(s) <= 14 else s[:13] + "…" for s in short]
+    cells = []
+    for i in range(len(names)):
+        row = []
+        for j in range(len(names)):
+            rho = float(corr[i, j])
+            strong = i != j and abs(rho) >= threshold
+            if math.isnan(rho):
+                row.append(Text("  ·  "))
+                continue
+            style = _heat(rho, i == j)
+            row.append(Text(f"{rho:+.2f}{'*' if strong else ' '}", style=style))
+        cells.append(row)
+    return short, cells
+
+
+def _heat(rho: float, diagonal: bool) -> str:
+    if diagonal:
+        return "dim"
+    a = abs(rho)
+    if a >= 0.9:
+        return "bold white on red" if rho > 0 else "bold white on blue"
+    if a >= 0.7:
+        return "red" if rho > 0 else "blue"
+    if a >= 0.4:
+        return "yellow" if rho > 0 else "cyan"
+    return ""
+
+
+def composition_bars(components: list[tuple[str, float]], width: int) -> Text:
+    """Horizontal bars of percentage composition."""
+    out = Text()
+    barw = max(width - 8, 6)
+    for label, frac in components:
+        n = int(round(frac * barw))
+        out.append(f"{100 * frac:5.1f}% ")
+        out.append("█" * n, style="green")
+        out.append("░" * (barw - n), style="dim")
+        out.append("\n   ")
+        out.append(label)
+        out.append("\n")
+    return out
