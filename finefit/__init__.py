@@ -8,12 +8,24 @@ from finefit.errors import FinefitError
 from finefit.model.estimates import hydrogenic_zeta, lande_zeta
 from finefit.model.hamiltonian import Model
 from finefit.model.solution import Level, Solution
+from finefit.radial import (
+    HartreeFockResult,
+    average_energy_differences,
+    configuration_interaction_integral,
+    hartree_fock,
+    hydrogenic,
+)
 from finefit.session import Session, load
 
 __version__ = "0.1.0"
 
 __all__ = [
     "FinefitError",
+    "HartreeFockResult",
+    "average_energy_differences",
+    "configuration_interaction_integral",
+    "hartree_fock",
+    "hydrogenic",
     "Level",
     "Model",
     "Session",

@@ -377,6 +377,40 @@ def cmd_sets(args) -> int:
     raise FinefitError(f"unknown sets action {action!r}", action)
 
 
+def cmd_abinitio(args) -> int:
+    from rich.progress import Progress, SpinnerColumn, TextColumn
+
+    s = _load(args.session)
+    scales = {}
+    for item in args.scale or []:
+        if "=" not in item:
+            raise FinefitError(f"--scale {item!r} must look like F=0.85", item)
+        k, v = item.split("=", 1)
+        if k not in ("F", "G", "R", "zeta"):
+            raise FinefitError(f"--scale {k!r}: use F, G, R or zeta", k)
+        scales[k] = _float(v, f"--scale {k}")
+    show = sys.stderr.isatty()
+    with Progress(SpinnerColumn(), TextColumn("{task.description}"), console=_err_console(),
+                  transient=True, disable=not show) as prog:
+        task = prog.add_task("ab initio values", total=None)
+        res = s.fill_ab_initio(scales, set_values=not args.keep_values,
+                               relativistic=args.relativistic,
+                               progress=lambda msg: prog.update(task, description=msg))
+    s.save()
+    con = _console(args)
+    tab = Table(title="Ab initio values (cm-1; configuration-average Hartree-Fock)",
+                title_justify="left")
+    for c in ("parameter", "ab initio", "start"):
+        tab.add_column(c, justify="left" if c == "parameter" else "right")
+    for n, v in res.ab_initio.items():
+        tab.add_row(Text(n), f"{v:.1f}", "" if args.keep_values else f"{res.start[n]:.1f}")
+    con.print(tab)
+    for n, why in res.skipped.items():
+        con.print(Text(f"no ab initio value for {n}: {why}", style="yellow"))
+    con.print(f"saved {s.path}")
+    return EXIT_OK
+
+
 def cmd_workspace(args) -> int:
     from finefit.ui.app import make_app
 
@@ -411,6 +445,16 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--title", help="a title for the session")
     sp.add_argument("--force", action="store_true", help="overwrite an existing file")
     sp.set_defaults(func=cmd_new)
+
+    sp = add("abinitio", "Hartree-Fock values of the parameters; scaled starting values",
+             json_flag=False)
+    sp.add_argument("--scale", action="append", metavar="KIND=FACTOR",
+                    help="scale factor per kind (defaults F=0.85 G=0.85 R=0.85 zeta=1.0)")
+    sp.add_argument("--keep-values", action="store_true",
+                    help="store the ab initio values only; leave the starting values")
+    sp.add_argument("--relativistic", action="store_true",
+                    help="add mass-velocity and Darwin corrections to E_av")
+    sp.set_defaults(func=cmd_abinitio)
 
     sp = add("workspace", "open the interactive terminal workspace on a session",
              json_flag=False)

@@ -320,6 +320,27 @@ class Session:
                 out[p] = model.solve({n: self.parameters[n].value for n in model.parameters})
         return out
 
+    def fill_ab_initio(
+        self,
+        scales: dict[str, float] | None = None,
+        set_values: bool = True,
+        relativistic: bool = False,
+        progress: Callable[[str], None] | None = None,
+    ):
+        """Store Hartree-Fock values as ``ab_initio`` and (optionally) scaled starting values."""
+        from finefit.fitting.starting import ab_initio_values
+
+        lowest = {}
+        for lv in self.levels:
+            lowest[lv.parity] = min(lowest.get(lv.parity, lv.energy), lv.energy)
+        res = ab_initio_values(self.models, self.ion.Z, self.ion.charge, scales, lowest,
+                               relativistic, progress)
+        for name, value in res.ab_initio.items():
+            self.parameters[name].ab_initio = value
+            if set_values:
+                self.parameters[name].value = res.start[name]
+        return res
+
     # ------------------------------------------------------------------ parameter sets
     def keep(self, result: FitResult, name: str, note: str = "") -> ParameterSet:
         """Store a fit as a named, timestamped parameter set."""

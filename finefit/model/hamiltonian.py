@@ -129,6 +129,11 @@ class Model:
                                 (x,),
                             )
                         else:
+                            if cls.k == 0 and (cls.pair1[0] == cls.pair1[1]
+                                               or cls.pair2[0] == cls.pair2[1]):
+                                # k = 0 with a spectator: a one-electron-like excitation,
+                                # omitted with the one-electron part (Brillouin's theorem)
+                                continue
                             mat[np.ix_(cfg_rows[y], cfg_rows[x])] = sub.T
                             res = interaction_name(
                                 cls,

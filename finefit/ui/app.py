@@ -389,7 +389,8 @@ class WorkspaceApp(App):
         if self.ws.dirty:
             parts.append("unsaved")
         if self.filter_text or self.outliers_only:
-            parts.append(f"filter: {self.filter_text or ''}{' outliers' if self.outliers_only else ''}")
+            extra = " outliers" if self.outliers_only else ""
+            parts.append(f"filter: {self.filter_text or ''}{extra}")
         if SORTS[self.sort_mode] != "energy":
             parts.append(f"sort: {SORTS[self.sort_mode]}")
         if self.message:
