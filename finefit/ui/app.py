@@ -7,6 +7,7 @@ module only shows their state and turns keys into edits. Fits run in a thread wo
 
 from __future__ import annotations
 
+import time
 from functools import partial
 from pathlib import Path
 
@@ -63,6 +64,7 @@ class WorkspaceApp(App):
         self.outliers_only = False
         self.detail_visible = True
         self.fits_done = 0
+        self.fit_landed: list[float] = []  # perf_counter times of applied fit results
 
     # ------------------------------------------------------------------ layout
     def compose(self) -> ComposeResult:
@@ -70,11 +72,11 @@ class WorkspaceApp(App):
         with TabbedContent(initial="levels", id="tabs"):
             with TabPane("Levels", id="levels"):
                 with Horizontal(id="levels-row"):
-                    yield DataTable(id="levels-table", cursor_type="row", zebra_stripes=True)
+                    yield DataTable(id="levels-table", cursor_type="row")
                     with VerticalScroll(id="detail"):
                         yield Static("", id="detail-text", markup=False)
             with TabPane("Parameters", id="params"):
-                yield DataTable(id="params-table", cursor_type="row", zebra_stripes=True)
+                yield DataTable(id="params-table", cursor_type="row")
             with TabPane("Correlations", id="corr"):
                 yield DataTable(id="corr-table", cursor_type="cell")
             with TabPane("O-C plot", id="resid"):
@@ -88,10 +90,9 @@ class WorkspaceApp(App):
         s = self.ws.session
         self.sub_title = f"{s.path.name if s.path else 'unsaved'} — {', '.join(s.configurations)}"
         lt = self.query_one("#levels-table", DataTable)
-        for key, label in (("id", "id"), ("label", "label"),
-                           ("J", "J"), ("par", "p"), ("eobs", "E obs"), ("ecalc", "E calc"),
-                           ("oc", "O-C"), ("pur", "%LS"), ("lead", "leading (best scheme)"),
-                           ("gc", "g calc"), ("go", "g obs"), ("flags", "")):
+        for key, label in (("id", "id"), ("label", "label"), ("J", "J"), ("eobs", "E obs"),
+                           ("ecalc", "E calc"), ("oc", "O-C"), ("pur", "%LS"),
+                           ("lead", "leading (best scheme)"), ("gc", "g calc"), ("flags", "")):
             lt.add_column(label, key=key)
         pt = self.query_one("#params-table", DataTable)
         for key, label in (("name", "parameter"), ("value", "value"), ("err", "± error"),
@@ -167,7 +168,12 @@ class WorkspaceApp(App):
             self.previous_sigma = self.result.sigma
         self.result = result
         self.fits_done += 1
+        self.fit_landed.append(time.perf_counter())
         self.refresh_all()
+
+    def last_fit_landed_after(self, t: float) -> float:
+        """When the first fit result after time ``t`` arrived (inf if none yet)."""
+        return next((x for x in self.fit_landed if x > t), float("inf"))
 
     # ------------------------------------------------------------------ refreshing
     def refresh_all(self) -> None:
@@ -247,8 +253,7 @@ class WorkspaceApp(App):
             table.add_row(
                 Text(lv.id),
                 Text(lv.label or f"({lv.configuration or (row.configuration if row else '?')})"),
-                Text(format_j(lv.J), justify="right"),
-                Text("e" if lv.parity == "even" else "o"),
+                Text(format_j(lv.J) + ("°" if lv.parity == "odd" else ""), justify="right"),
                 Text(f"{lv.energy:.3f}", justify="right"),
                 Text(f"{row.energy_calc:.3f}" if row else "", justify="right"),
                 oc,
@@ -258,7 +263,6 @@ class WorkspaceApp(App):
                     if row and row.components else ""
                 ),
                 Text(f"{row.g_calc:.4f}" if row else "", justify="right"),
-                Text("" if lv.g is None else f"{lv.g:.3f}", justify="right"),
                 Text(" ".join(flags), style="dim"),
                 key=lv.id,
             )
@@ -424,9 +428,12 @@ class WorkspaceApp(App):
             self.update_status()
             return False
         self.message = description
-        self.refresh_levels()
-        self.refresh_params()
+        # the tables are redrawn once, when the new fit lands (redrawing a large table
+        # costs as much as the fit itself); if the session cannot be fitted, redraw now
         self.schedule_fit()
+        if not self.fit_running:
+            self.refresh_levels()
+            self.refresh_params()
         return True
 
     # ------------------------------------------------------------------ actions
