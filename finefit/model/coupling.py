@@ -9,6 +9,7 @@ exactly as for LS. Compositions in a scheme are the squared overlaps with its ba
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -357,9 +358,11 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
         else:
             head_text = head
         odd = info.configuration.parity == "odd"
+        # a seniority digit on the core term would run into J_c: separate them by a comma
+        sep = "" if re.fullmatch(r"\d+[A-Z\[\]=L0-9]*?[A-Z]°?", core_term) else ","
         lab = (
-            f"{head_text}({core_term}{format_angular(jc2)}){outer_sub.name} 2[{format_angular(k2)}]"
-            + ("°" if odd else "")
+            f"{head_text}({core_term}{sep}{format_angular(jc2)}){outer_sub.name} "
+            f"2[{format_angular(k2)}]" + ("°" if odd else "")
         )
         if index[i]:
             lab += "abcdefghijklmnopqrstuvwxyz"[index[i] - 1]

@@ -65,6 +65,7 @@ class WorkspaceApp(App):
         self.detail_visible = True
         self.fits_done = 0
         self.fit_landed: list[float] = []  # perf_counter times of applied fit results
+        self.diagram_choice = 0  # 0: all configurations, k: the k-th
 
     # ------------------------------------------------------------------ layout
     def compose(self) -> ComposeResult:
@@ -90,10 +91,14 @@ class WorkspaceApp(App):
         s = self.ws.session
         self.sub_title = f"{s.path.name if s.path else 'unsaved'} — {', '.join(s.configurations)}"
         lt = self.query_one("#levels-table", DataTable)
-        for key, label in (("id", "id"), ("label", "label"), ("J", "J"), ("eobs", "E obs"),
-                           ("ecalc", "E calc"), ("oc", "O-C"), ("pur", "%LS"),
-                           ("lead", "leading (best scheme)"), ("gc", "g calc"), ("flags", "")):
-            lt.add_column(label, key=key)
+        # numeric columns get fixed widths: the table is rebuilt after every fit and must
+        # not jump or truncate numbers
+        for key, label, width in (("id", "id", None), ("label", "label", None),
+                                  ("J", "J", 5), ("eobs", "E obs", 11), ("ecalc", "E calc", 11),
+                                  ("oc", "O-C", 12), ("pur", "%LS", 4),
+                                  ("lead", "leading (best scheme)", None), ("gc", "g calc", 7),
+                                  ("flags", "", None)):
+            lt.add_column(label, key=key, width=width)
         pt = self.query_one("#params-table", DataTable)
         for key, label in (("name", "parameter"), ("value", "value"), ("err", "± error"),
                            ("state", "status"), ("link", "link"), ("bounds", "bounds"),
@@ -102,6 +107,7 @@ class WorkspaceApp(App):
         self.detail_visible = self.size.width >= 110
         self._apply_detail_visibility()
         self.refresh_all()
+        lt.focus()
         if self.offer_recovery:
             self.push_screen(
                 ChoiceScreen(
@@ -247,7 +253,7 @@ class WorkspaceApp(App):
                 q = abs(row.residual) / sigma if sigma else 0.0
                 mark = " !!" if q > 3 else (" !" if q > 2 else "")
                 style = "bold red" if q > 3 else ("yellow" if q > 2 else "")
-                oc = Text(f"{row.residual:9.2f}{mark}", style=style)
+                oc = Text(f"{row.residual:9.2f}{mark}", style=style, justify="left")
                 if row.label_mismatch:
                     flags.append("≠label")
             table.add_row(
@@ -255,7 +261,7 @@ class WorkspaceApp(App):
                 Text(lv.label or f"({lv.configuration or (row.configuration if row else '?')})"),
                 Text(format_j(lv.J) + ("°" if lv.parity == "odd" else ""), justify="right"),
                 Text(f"{lv.energy:.3f}", justify="right"),
-                Text(f"{row.energy_calc:.3f}" if row else "", justify="right"),
+                Text(f"{row.energy_calc:.3f}" if row else "…", justify="right"),
                 oc,
                 Text(f"{100 * row.purity:.0f}" if row else "", justify="right"),
                 Text(
@@ -340,7 +346,11 @@ class WorkspaceApp(App):
         for i, n in enumerate(names):
             corr.add_row(Text(n), *cells[i], key=f"r{i}")
         self.query_one("#resid-plot", Static).update(pictures.residual_plot(r, w, h))
-        self.query_one("#diagram-plot", Static).update(pictures.level_diagram(r, w, h))
+        configs = pictures.diagram_configurations(r)
+        chosen = configs[self.diagram_choice - 1] if 0 < self.diagram_choice <= len(configs) \
+            else None
+        self.query_one("#diagram-plot", Static).update(
+            pictures.level_diagram(r, w, h, configuration=chosen))
 
     def refresh_detail(self) -> None:
         static = self.query_one("#detail-text", Static)
@@ -733,6 +743,13 @@ class WorkspaceApp(App):
             self.query_one("#levels-table").focus()
         elif name == "corr":
             self.query_one("#corr-table").focus()
+
+    def action_cycle_diagram(self) -> None:
+        if self._modal_open() or self.result is None:
+            return
+        n = len(pictures.diagram_configurations(self.result))
+        self.diagram_choice = (self.diagram_choice + 1) % (n + 1)
+        self.refresh_pictures()
 
     def action_help(self) -> None:
         if not isinstance(self.screen, HelpScreen):

@@ -67,23 +67,46 @@ def residual_plot(r: FitResult, width: int, height: int) -> Text:
     return out
 
 
-def level_diagram(r: FitResult, width: int, height: int, max_columns: int = 12) -> Text:
-    """Levels by configuration and J: calculated '─', observed '━' (excluded '┄')."""
+def diagram_configurations(r: FitResult) -> list[str]:
+    seen: list[str] = []
+    for row in r.levels:
+        if row.configuration not in seen:
+            seen.append(row.configuration)
+    for p in r.predictions:
+        if p.configuration not in seen:
+            seen.append(p.configuration)
+    return seen
+
+
+def level_diagram(r: FitResult, width: int, height: int, configuration: str | None = None
+                  ) -> Text:
+    """Levels by configuration and J: calculated '─', observed '━' (excluded '┄'),
+    predicted '╌'. The energy range is that of the observed levels (plus a margin)."""
     columns: dict[tuple[str, float], list[tuple[float, str]]] = {}
     for row in r.levels:
+        if configuration and row.configuration != configuration:
+            continue
         key = (row.configuration, row.J)
         columns.setdefault(key, []).append((row.energy_calc, "calc"))
         columns[key].append((row.energy_obs, "obs" if row.included else "excl"))
+    obs = [row.energy_obs for row in r.levels] or [0.0]
+    lo_e, hi_e = min(obs), max(obs)
+    margin = 0.1 * max(hi_e - lo_e, 1.0)
     for p in r.predictions:
-        columns.setdefault((p.configuration, p.J), []).append((p.energy, "pred"))
+        if configuration and p.configuration != configuration:
+            continue
+        if lo_e - margin <= p.energy <= hi_e + margin:
+            columns.setdefault((p.configuration, p.J), []).append((p.energy, "pred"))
     if not columns:
         return Text("nothing to draw")
-    keys = sorted(columns, key=lambda k: (k[0], k[1]))[:max_columns]
+    order = diagram_configurations(r)
+    keys = sorted(columns, key=lambda k: (order.index(k[0]) if k[0] in order else 99, k[1]))
     energies = [e for k in keys for e, _ in columns[k]]
     emin, emax = min(energies), max(energies)
     span = max(emax - emin, 1e-9)
     left = 9
     colw = max(5, min(9, (width - left) // max(len(keys), 1)))
+    keys = keys[: max((width - left) // colw, 1)]
     ph = max(height - 4, 6)
     grid = [[" "] * (colw * len(keys)) for _ in range(ph)]
     styles = [[""] * (colw * len(keys)) for _ in range(ph)]
@@ -101,20 +124,25 @@ def level_diagram(r: FitResult, width: int, height: int, max_columns: int = 12) 
                 grid[y][x] = ch
                 styles[y][x] = st
     out = Text()
-    out.append("levels by configuration and J   ─ calc  ━ obs  ┄ excluded  ╌ predicted\n",
-               style="bold")
+    title = configuration or "all configurations"
+    out.append(f"{title} by J   ─ calc  ━ obs  ┄ excluded  ╌ predicted\n", style="bold")
     for y in range(ph):
         val = emax - span * y / max(ph - 1, 1)
         out.append(f"{val:8.0f} " if y % 4 == 0 else " " * left)
         for x in range(len(grid[y])):
             out.append(grid[y][x], style=styles[y][x] or None)
         out.append("\n")
-    out.append(" " * left)
+    out.append("       J ")
     for key in keys:
-        out.append(f"J={format_j(key[1])}".ljust(colw)[:colw])
+        out.append(format_j(key[1]).ljust(colw)[:colw])
     out.append("\n" + " " * left)
+    previous = None
     for key in keys:
-        out.append(key[0].replace(" ", "")[: colw - 1].ljust(colw))
+        name = key[0] if key[0] != previous else ""
+        previous = key[0]
+        out.append(("▏" + name if name else "").ljust(colw)[:colw], style="bold")
+    if len(keys) < len(columns):
+        out.append("\n(more columns than fit: c shows one configuration at a time)", style="dim")
     return out
 
 
