@@ -17,10 +17,12 @@ def parse_j(value: object, field: str = "J") -> float:
         else:
             text = str(value).strip()
             twice = 2 * Fraction(text)
-    except (ValueError, ZeroDivisionError, TypeError):
+    except (ValueError, ZeroDivisionError, TypeError, OverflowError):
         raise FinefitError(
             f"{field} = {value!r} is not a J value: write it as 7/2 or 3.5", field
         ) from None
+    if abs(twice) > 2000:
+        raise FinefitError(f"{field} = {str(value)[:24]} is far too large for a J value", field)
     if twice.denominator != 1 or twice < 0:
         raise FinefitError(
             f"{field} = {value!r} is not a non-negative integer or half-integer", field

@@ -48,7 +48,7 @@ def test_parse_j(text, value):
     assert parse_j(text) == value
 
 
-@pytest.mark.parametrize("text", ["7/3", "-1", "abc", "1.25", True])
+@pytest.mark.parametrize("text", ["7/3", "-1", "abc", "1.25", True, 1e308, float("inf"), "1e400"])
 def test_bad_j(text):
     with pytest.raises(FinefitError):
         parse_j(text)

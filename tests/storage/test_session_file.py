@@ -32,6 +32,10 @@ vary = true
 value = 37000.0
 vary = true
 
+[parameters."2p2: zeta(2p)"]
+value = 25.0
+vary = false
+
 [[level]]
 id = "a"
 energy = 0.0
@@ -77,6 +81,7 @@ def test_round_trip_is_stable(good_file, tmp_path):
     assert s2.values() == pytest.approx(s.values())
     assert [lv.id for lv in s2.levels] == ["a", "b", "c"]
     r2 = s2.report()
+    assert r.sigma is not None  # 3 levels, 2 free parameters
     assert r2.sigma == pytest.approx(r.sigma, rel=1e-9)
 
 
