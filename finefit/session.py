@@ -24,7 +24,7 @@ from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
 from finefit.model.hamiltonian import Model
 from finefit.notation.configuration import parse_configuration
 from finefit.notation.jvalues import parse_j
-from finefit.storage.atomic import atomic_write_text
+from finefit.storage.atomic import atomic_write_text, read_text
 from finefit.storage.session_file import (
     Ion,
     ParameterSet,
@@ -112,12 +112,7 @@ class Session:
     @classmethod
     def load(cls, path: str | Path) -> Session:
         p = Path(path)
-        try:
-            text = p.read_text(encoding="utf-8")
-        except FileNotFoundError:
-            raise FinefitError(f"session file {str(p)!r} does not exist", str(p)) from None
-        except (OSError, UnicodeDecodeError) as exc:
-            raise FinefitError(f"cannot read session file {str(p)!r}: {exc}", str(p)) from None
+        text = read_text(p, "session file")
         return cls(parse_session(text, source=str(p)), path=p)
 
     # ------------------------------------------------------------------ persistence

@@ -122,21 +122,18 @@ class Workspace:
         return result
 
     def undo(self) -> str | None:
-        if not self.undo_stack:
-            return None
-        snap = self.undo_stack.pop()
-        self.redo_stack.append(self._snapshot(snap.description))
-        self._restore(snap)
-        self.dirty = True
-        self.generation += 1
-        self._write_journal()
-        return snap.description
+        """Go back one edit; returns its description (None when there is nothing to undo)."""
+        return self._move(self.undo_stack, self.redo_stack)
 
     def redo(self) -> str | None:
-        if not self.redo_stack:
+        """Repeat the edit undone last; returns its description."""
+        return self._move(self.redo_stack, self.undo_stack)
+
+    def _move(self, source: list[Snapshot], target: list[Snapshot]) -> str | None:
+        if not source:
             return None
-        snap = self.redo_stack.pop()
-        self.undo_stack.append(self._snapshot(snap.description))
+        snap = source.pop()
+        target.append(self._snapshot(snap.description))
         self._restore(snap)
         self.dirty = True
         self.generation += 1

@@ -11,6 +11,20 @@ import numpy as np
 from finefit.fitting.settings import ObservedLevel
 from finefit.model.hamiltonian import Model
 
+# INVENTED parameter values (cm-1) for the even set 3d6 4s + 3d7 + 3d5 4s2, used by the
+# demo session, the fit benchmark and tests. Iron-group-like magnitudes; not a real ion.
+INVENTED_IRON_GROUP = {
+    "3d6 4s: Eav": 30000.0, "3d6 4s: F2(3d)": 85000.0, "3d6 4s: F4(3d)": 53000.0,
+    "3d6 4s: G2(3d,4s)": 9000.0, "3d6 4s: zeta(3d)": 420.0, "3d6 4s: alpha(3d)": 60.0,
+    "3d7: Eav": 33000.0, "3d7: F2(3d)": 80000.0, "3d7: F4(3d)": 50000.0,
+    "3d7: zeta(3d)": 400.0, "3d7: alpha(3d)": 55.0,
+    "3d5 4s2: Eav": 55000.0, "3d5 4s2: F2(3d)": 90000.0, "3d5 4s2: F4(3d)": 56000.0,
+    "3d5 4s2: zeta(3d)": 440.0, "3d5 4s2: alpha(3d)": 65.0,
+    "3d6 4s | 3d7: R2(3d4s,3d3d)": -4000.0, "3d6 4s | 3d5 4s2: R2(3d3d,3d4s)": -4500.0,
+    "3d7 | 3d5 4s2: R2(3d3d,4s4s)": 3000.0,
+}
+IRON_GROUP_CONFIGURATIONS = ["3d6 4s", "3d7", "3d5 4s2"]
+
 
 def synthetic_levels(
     model: Model,

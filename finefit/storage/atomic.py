@@ -8,6 +8,19 @@ import tempfile
 from pathlib import Path
 
 
+def read_text(path: str | os.PathLike, what: str) -> str:
+    """A text file's content; a missing or unreadable file is a FinefitError naming it."""
+    from finefit.errors import FinefitError
+
+    p = Path(path)
+    try:
+        return p.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise FinefitError(f"{what} {str(p)!r} does not exist", str(p)) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise FinefitError(f"cannot read {what} {str(p)!r}: {exc}", str(p)) from None
+
+
 def atomic_write_text(path: str | os.PathLike, text: str, backup: bool = True) -> Path:
     """Write ``text`` to ``path`` so that a crash leaves either the old or the new file.
 

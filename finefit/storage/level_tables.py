@@ -18,7 +18,7 @@ from pathlib import Path
 from finefit.errors import FinefitError
 from finefit.fitting.settings import ObservedLevel
 from finefit.notation.jvalues import format_j, parse_j
-from finefit.storage.atomic import atomic_write_text
+from finefit.storage.atomic import atomic_write_text, read_text
 
 FIELDS = ("id", "energy", "uncertainty", "J", "parity", "configuration", "label", "include",
           "g", "note")
@@ -67,12 +67,7 @@ def read_levels(
 ) -> list[ObservedLevel]:
     """Read observed levels from a table; errors name the file, line and column."""
     p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise FinefitError(f"level table {str(p)!r} does not exist", str(p)) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise FinefitError(f"cannot read level table {str(p)!r}: {exc}", str(p)) from None
+    text = read_text(p, "level table")
     return parse_levels(text, fmt or detect_format(p, text), columns, defaults, str(p), id_start)
 
 

@@ -623,26 +623,18 @@ class WorkspaceApp(App):
                  "when the fit starts."), done)
 
     def action_undo(self) -> None:
-        if self._modal_open():
-            return
-        d = self.ws.undo()
-        self.message = f"undone: {d}" if d else "nothing to undo"
-        self.refresh_levels()
-        self.refresh_params()
-        if d:
-            self.schedule_fit()
-        else:
-            self.update_status()
+        self._step_history(self.ws.undo, "undone", "nothing to undo")
 
     def action_redo(self) -> None:
+        self._step_history(self.ws.redo, "redone", "nothing to redo")
+
+    def _step_history(self, step, done_word: str, nothing: str) -> None:
         if self._modal_open():
             return
-        d = self.ws.redo()
-        self.message = f"redone: {d}" if d else "nothing to redo"
-        self.refresh_levels()
-        self.refresh_params()
+        d = step()
+        self.message = f"{done_word}: {d}" if d else nothing
         if d:
-            self.schedule_fit()
+            self.schedule_fit()  # the tables are redrawn when the fit lands
         else:
             self.update_status()
 
