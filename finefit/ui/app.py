@@ -66,6 +66,7 @@ class WorkspaceApp(App):
         self.fits_done = 0
         self.fit_landed: list[float] = []  # perf_counter times of applied fit results
         self.diagram_choice = 0  # 0: all configurations, k: the k-th
+        self.wide_table = False
 
     # ------------------------------------------------------------------ layout
     def compose(self) -> ComposeResult:
@@ -93,11 +94,22 @@ class WorkspaceApp(App):
         lt = self.query_one("#levels-table", DataTable)
         # numeric columns get fixed widths: the table is rebuilt after every fit and must
         # not jump or truncate numbers
-        for key, label, width in (("id", "id", None), ("label", "label", None),
-                                  ("J", "J", 5), ("eobs", "E obs", 11), ("ecalc", "E calc", 11),
-                                  ("oc", "O-C", 12), ("pur", "%LS", 4),
-                                  ("lead", "leading (best scheme)", None), ("gc", "g calc", 7),
-                                  ("flags", "", None)):
+        # on wide screens the configuration, parity and observed g get their own columns
+        # (on narrow ones parity is the ° on J and g obs is in the detail pane)
+        self.wide_table = self.size.width >= 140
+        columns = [("id", "id", None)]
+        if self.wide_table:
+            columns.append(("conf", "configuration", None))
+        columns += [("label", "label", None), ("J", "J", 5)]
+        if self.wide_table:
+            columns.append(("par", "parity", 6))
+        columns += [("eobs", "E obs", 11), ("ecalc", "E calc", 11), ("oc", "O-C", 12),
+                    ("pur", "%LS", 4), ("lead", "leading (best scheme)", None),
+                    ("gc", "g calc", 7)]
+        if self.wide_table:
+            columns.append(("go", "g obs", 6))
+        columns.append(("flags", "", None))
+        for key, label, width in columns:
             lt.add_column(label, key=key, width=width)
         pt = self.query_one("#params-table", DataTable)
         for key, label in (("name", "parameter"), ("value", "value"), ("err", "± error"),
@@ -256,10 +268,17 @@ class WorkspaceApp(App):
                 oc = Text(f"{row.residual:9.2f}{mark}", style=style, justify="left")
                 if row.label_mismatch:
                     flags.append("≠label")
-            table.add_row(
-                Text(lv.id),
-                Text(lv.label or f"({lv.configuration or (row.configuration if row else '?')})"),
+            conf = lv.configuration or (row.configuration if row else "?")
+            cells = [Text(lv.id)]
+            if self.wide_table:
+                cells.append(Text(conf))
+            cells += [
+                Text(lv.label or f"({conf})"),
                 Text(format_j(lv.J) + ("°" if lv.parity == "odd" else ""), justify="right"),
+            ]
+            if self.wide_table:
+                cells.append(Text(lv.parity))
+            cells += [
                 Text(f"{lv.energy:.3f}", justify="right"),
                 Text(f"{row.energy_calc:.3f}" if row else "…", justify="right"),
                 oc,
@@ -269,9 +288,11 @@ class WorkspaceApp(App):
                     if row and row.components else ""
                 ),
                 Text(f"{row.g_calc:.4f}" if row else "", justify="right"),
-                Text(" ".join(flags), style="dim"),
-                key=lv.id,
-            )
+            ]
+            if self.wide_table:
+                cells.append(Text("" if lv.g is None else f"{lv.g:.3f}", justify="right"))
+            cells.append(Text(" ".join(flags), style="dim"))
+            table.add_row(*cells, key=lv.id)
         if keep is not None:
             self.select_level(keep)
 
