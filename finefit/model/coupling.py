@@ -13,7 +13,6 @@ import re
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.sparse as sp
 
 from finefit.angular.determinants import one_body, two_body
 from finefit.angular.operators import (
@@ -25,8 +24,17 @@ from finefit.angular.operators import (
     splus_terms,
     sz_terms,
 )
-from finefit.model.basis import TIE_BREAK_WEIGHTS, Basis, LSState
+from finefit.model.basis import (
+    TIE_BREAK_WEIGHTS,
+    Basis,
+    LSState,
+    _casimir_value,
+    _casimir_value2,
+    _p_seniority,
+    _seniority,
+)
 from finefit.model.solution import lande_g_ls
+from finefit.notation.jvalues import format_angular
 from finefit.notation.labels import SubshellPart, format_jj, format_ls
 from finefit.notation.terms import term_symbol
 
@@ -44,24 +52,6 @@ def ls_label(basis: Basis, state: LSState) -> str:
             parts.append(SubshellPart(s.name, s.occupancy, s.l))
     odd = info.configuration.parity == "odd"
     return format_ls(parts, list(state.intermediates), state.L, state.S2, odd)
-
-
-def _core_text(basis: Basis, state: LSState) -> str:
-    """The LS label of a JK core (all subshells but the outer one) without its final term."""
-    info = basis.configs[state.config]
-    subs = [s for s in info.configuration.subshells]
-    outer = [s for s in subs if s.is_open][-1]
-    parts, k = [], 0
-    for s in subs:
-        if s is outer:
-            continue
-        if s.is_open and s.name in basis.shell_names:
-            t = state.subshell_terms[k]
-            k += 1
-            parts.append(SubshellPart(s.name, s.occupancy, s.l, t.L, t.S2, t.seniority, t.index))
-        else:
-            parts.append(SubshellPart(s.name, s.occupancy, s.l))
-    return parts, outer
 
 
 class _Casimirs:
@@ -167,7 +157,6 @@ def coupling_data(model) -> dict[int, BlockCoupling]:
         states = [basis.ls_states[i] for i in b.state_index]
         ls = [ls_label(basis, st) for st in states]
         g = np.array([lande_g_ls(st.L, st.S2, b.J2) for st in states])
-        cas = _Casimirs(basis, b.J2, jb.vectors)
         n = b.size
         jj_U = np.zeros((n, n))
         jk_U = np.eye(n)
@@ -191,7 +180,6 @@ def coupling_data(model) -> dict[int, BlockCoupling]:
                 jk_U[np.ix_(rows, rows)] = R
                 for r, lab in zip(rows, labels, strict=True):
                     jk_labels[r] = lab
-        del cas
         out[b.J2] = BlockCoupling(
             b.J2, ls, g, jj_labels, jj_U, jk_labels, jk_U, has_jk, b.state_config
         )
@@ -305,10 +293,6 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
     n = cas.Q.shape[1]
     R, values, index = _sequential(ops, n, tie)
     val = dict(zip(keys, values, strict=True))
-    from finefit.model.basis import _casimir_value, _casimir_value2, _p_seniority, _seniority
-    from finefit.notation.labels import SubshellPart as Part
-    from finefit.notation.labels import format_ls as fmt
-
     labels = []
     outer_sub = None
     for s in info.configuration.subshells:
@@ -324,15 +308,15 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
             if s.is_open and s.name in basis.shell_names:
                 l, n_el = s.l, s.occupancy
                 if n_el in (1, 4 * l + 1):
-                    parts.append(Part(s.name, n_el, l, l, 1, 1, 0))
+                    parts.append(SubshellPart(s.name, n_el, l, l, 1, 1, 0))
                 else:
                     Ls = _casimir_value(val[("L", pos)][i])
                     S2s = _casimir_value2(val[("S", pos)][i])
                     v = _seniority(val[("v", pos)][i], l, n_el) if l >= 2 else _p_seniority(Ls, S2s)
-                    parts.append(Part(s.name, n_el, l, Ls, S2s, v, 0))
+                    parts.append(SubshellPart(s.name, n_el, l, Ls, S2s, v, 0))
                 pos += 1
             else:
-                parts.append(Part(s.name, s.occupancy, s.l))
+                parts.append(SubshellPart(s.name, s.occupancy, s.l))
         for k in range(1, len(core)):
             inter.append((_casimir_value(val[("Lc", k)][i]), _casimir_value2(val[("Sc", k)][i])))
         if len(core) == 1:
@@ -345,18 +329,13 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
             sum(s.l * s.occupancy for s in info.configuration.subshells if s is not outer_sub) % 2
             == 1
         )
-        text = fmt(parts, inter, cL, cS2, core_odd)
+        text = format_ls(parts, inter, cL, cS2, core_odd)
         head, _, final = text.rpartition(" ")
         # core term with its J in parentheses, then the outer electron and [K]
-        from finefit.notation.jvalues import format_angular
-
         jc2 = _two_j(val[("Jc",)][i])
         k2 = _two_j(val[("K",)][i])
         core_term = final if len(core) == 1 else term_symbol(cL, cS2, core_odd)
-        if len(core) == 1:
-            head_text = head
-        else:
-            head_text = head
+        head_text = head
         odd = info.configuration.parity == "odd"
         # a seniority digit on the core term would run into J_c: separate them by a comma
         sep = "" if re.fullmatch(r"\d+[A-Z\[\]=L0-9]*?[A-Z]°?", core_term) else ","
@@ -370,4 +349,4 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
     return R, labels
 
 
-__all__ = ["coupling_data", "ls_label", "BlockCoupling", "sp"]
+__all__ = ["coupling_data", "ls_label", "BlockCoupling"]

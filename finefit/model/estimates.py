@@ -5,7 +5,7 @@
 - Landé's semi-empirical formula: zeta_nl = alpha^2 R Z_i^2 Z_o^2 / (n*^3 l (l + 1/2) (l + 1)),
   with Z_o the charge seen outside (ion charge + 1), Z_i the effective inner
   charge and n* the effective quantum number of the electron from its binding
-  energy E_b = R Z_o^2 / n*^2 (Landé 1924; Kuhn, Atomic Spectra, 1969, §III.?; the
+  energy E_b = R Z_o^2 / n*^2 (Landé 1924; Kuhn, Atomic Spectra, 1969; the
   doublet splitting (l + 1/2) zeta is Landé's alpha^2 R Z_i^2 Z_o^2 / (n*^3 l (l + 1))).
 All in cm^-1; constants from scipy.constants (CODATA).
 """

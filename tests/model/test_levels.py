@@ -15,22 +15,20 @@ def test_g_electron_from_codata():
 
 def test_lande_formula_pure_ls():
     # Landé LS formula g = 1 + (g_s - 1)[J(J+1) + S(S+1) - L(L+1)]/(2J(J+1))
-    # (Condon & Shortley 1935, §XVI.1): 3F2 with g_s = 2 gives 2/3
+    # (Condon & Shortley 1935, Zeeman-effect chapter): 3F2 with g_s = 2 gives 2/3
     model = Model("3d2")
     sol = model.solve({"3d2: F2(3d)": 60000.0, "3d2: F4(3d)": 40000.0, "3d2: zeta(3d)": 1e-3})
     lev = next(x for x in sol.levels if x.label == "3d2 3F" and x.J == 2)
     assert lev.g == pytest.approx(lande_g_ls(3, 2, 4), abs=1e-8)
-    assert lande_g_ls(3, 2, 4) == pytest.approx(
-        2 / 3 + (G_ELECTRON - 2) * (6 + 2 - 12) / 12 * -1
-        if False
-        else 1 + (G_ELECTRON - 1) * (6 + 2 - 12) / 12
-    )
+    # 3F2: J(J+1) + S(S+1) - L(L+1) = 6 + 2 - 12 = -4
+    assert lande_g_ls(3, 2, 4) == pytest.approx(1 + (G_ELECTRON - 1) * -4 / 12)
+    assert lande_g_ls(3, 2, 4) == pytest.approx(2 / 3, abs=1e-3)  # g_s = 2 textbook value
     assert lande_g_ls(0, 2, 2) == pytest.approx(G_ELECTRON)  # 3S1: g = g_s
 
 
 def test_g_sum_rule():
     # g-sum rule: for each J the sum of g over the levels does not depend on the mixing
-    # (Condon & Shortley 1935, §XVI.?)  # from memory
+    # (Condon & Shortley 1935, chapter on the Zeeman effect)  # from memory
     model = Model(["3d2", "3d 4s"])
     base = {"3d2: F2(3d)": 50000.0, "3d2: F4(3d)": 30000.0, "3d 4s: G2(3d,4s)": 9000.0}
     pure = model.solve(base | {"3d2: zeta(3d)": 1e-6})
@@ -90,7 +88,7 @@ def test_compositions_are_complete_in_every_scheme():
             assert sum(c.fraction for c in comp) == pytest.approx(1.0, abs=1e-10)
     jk = {c.label for lev in sol.levels for c in sol.composition(lev, "JK")}
     # Racah pair coupling of 2p5 3p: core 2P°3/2 gives [1/2], [3/2], [5/2]; 2P°1/2 gives
-    # [1/2], [3/2] (Cowan 1981 §4-?)  # from memory
+    # [1/2], [3/2] (Cowan 1981, pair coupling)  # from memory
     assert jk == {
         "2p5(2P°3/2)3p 2[1/2]",
         "2p5(2P°3/2)3p 2[3/2]",

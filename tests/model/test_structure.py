@@ -88,7 +88,7 @@ _COG_MODEL = Model(["3d2", "3d 4s", "4s2"])
 
 def test_lande_interval_rule_small_zeta():
     # Landé interval rule: E(J) - E(J-1) = A J within a term, first order in zeta
-    # (Condon & Shortley 1935, §4.2? / Landé 1923)  # from memory
+    # (Landé 1923; Condon & Shortley 1935)  # from memory
     model = Model("3d2")
     sol = model.solve({"3d2: F2(3d)": 60000.0, "3d2: F4(3d)": 40000.0, "3d2: zeta(3d)": 1.0})
     f = sorted((x.J, x.energy) for x in sol.levels if x.label == "3d2 3F")
@@ -98,7 +98,7 @@ def test_lande_interval_rule_small_zeta():
 
 def test_jj_limit_large_zeta():
     # jj limit: for 2p 3s with zeta >> G the levels group by the p electron's j:
-    # j = 3/2 (J = 1, 2) lies 3 zeta/2 above j = 1/2 (J = 0, 1) (Cowan 1981, §4-?)  # from memory
+    # j = 3/2 (J = 1, 2) lies 3 zeta/2 above j = 1/2 (J = 0, 1) (Cowan 1981)  # from memory
     model = Model("2p 3s")
     zeta = 10000.0
     sol = model.solve({"2p 3s: G1(2p,3s)": 30.0, "2p 3s: zeta(2p)": zeta})
@@ -114,7 +114,7 @@ def test_jj_limit_large_zeta():
 
 @pytest.mark.parametrize("l, n", [(1, 2), (2, 3), (2, 4), (3, 2)])
 def test_particle_hole_conjugation(l, n):
-    # l^N and l^(4l+2-N) have the same terms; zeta changes sign (Condon & Shortley §8.?;
+    # l^N and l^(4l+2-N) have the same terms; zeta changes sign (Condon & Shortley 1935;
     # Racah 1942)  # from memory
     letter = "spdf"[l]
     shell = f"{l + 1 if l < 3 else 4}{letter}"

@@ -154,7 +154,8 @@ def test_pp_table_values():
 @pytest.mark.parametrize("config, l", [("3d 4s", 2), ("2p 3s", 1), ("4f 6s", 3)])
 def test_sl_configuration(config, l):
     # s-l configuration: singlet-triplet separation 2G^l/(2l+1), triplet lower
-    # (Condon & Shortley 1935, §XI.?; Cowan 1981 §12)  # from memory
+    # (Condon & Shortley 1935, chapter on two-electron configurations; Cowan 1981)
+    # from memory
     s_l, s_s = config.split()
     G = 1500.0
     zeta = 0.0
