@@ -5,6 +5,7 @@ energy levels, read the eigenvector compositions, and predict missing levels.
 """
 
 from finefit.errors import FinefitError
+from finefit.lines import air_to_vacuum, vacuum_to_air
 from finefit.model.estimates import hydrogenic_zeta, lande_zeta
 from finefit.model.hamiltonian import Model
 from finefit.model.solution import Level, Solution
@@ -20,6 +21,8 @@ from finefit.session import Session, load
 __version__ = "0.1.0"
 
 __all__ = [
+    "air_to_vacuum",
+    "vacuum_to_air",
     "FinefitError",
     "HartreeFockResult",
     "average_energy_differences",
