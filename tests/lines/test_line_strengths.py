@@ -1,0 +1,87 @@
+"""Electric-dipole line strengths: multiplet patterns, sum rules, hydrogen Lyman alpha."""
+
+import numpy as np
+import pytest
+from sympy.physics.wigner import wigner_6j
+
+from finefit import Model
+from finefit.lines.transitions import DipoleModel, line_strengths
+
+
+def test_lyman_alpha_oscillator_strength():
+    # hydrogen 1s-2p: <1s|r|2p> = 2^7 sqrt(6) / 3^5 bohr and f = 0.4162
+    # (Bethe & Salpeter 1957, tables of hydrogen oscillator strengths)  # from memory
+    a, b = Model("1s"), Model("2p")
+    radial = 2**7 * np.sqrt(6) / 3**5
+    lines = line_strengths(DipoleModel(a, b), a.solve({}), b.solve({}), {("1s", "2p"): radial})
+    S = sum(s for _, _, s in lines)
+    delta_e = 0.375  # hartree, 3/8 for infinite nuclear mass
+    f = 2 / 3 * delta_e * S / 2  # f = (2/3) dE S / g_lower, atomic units (Cowan 1981, ch. 14)
+    assert f == pytest.approx(0.4162, abs=2e-4)
+
+
+def test_doublet_2s_2p_ratio():
+    # 2S1/2 - 2P3/2 : 2S1/2 - 2P1/2 = 2 : 1 (Condon & Shortley 1935; Allen, Astrophysical
+    # Quantities, multiplet tables)  # from memory
+    a, b = Model("3s"), Model("3p")
+    lines = line_strengths(DipoleModel(a, b), a.solve({}), b.solve({"3p: zeta(3p)": 10.0}),
+                           {("3s", "3p"): 1.0})
+    s = {(la.J, lb.J): S for la, lb, S in lines}
+    assert s[(0.5, 1.5)] / s[(0.5, 0.5)] == pytest.approx(2.0)
+
+
+def _pure_ls_lines():
+    odd, even = Model("2p 3s"), Model("2p 3p")
+    so = odd.solve({"2p 3s: G1(2p,3s)": 3000.0, "2p 3s: zeta(2p)": 1e-4})
+    se = even.solve({"2p 3p: F2(2p,3p)": 20000.0, "2p 3p: G0(2p,3p)": 3000.0,
+                     "2p 3p: G2(2p,3p)": 9000.0, "2p 3p: zeta(2p)": 1e-4})
+    lines = line_strengths(DipoleModel(odd, even), so, se, {("3s", "3p"): 1.0})
+    return lines
+
+
+def _component(lines, lower, upper):
+    return {(la.J, lb.J): S for la, lb, S in lines if la.label == lower and lb.label == upper}
+
+
+def test_3p_3s_pattern():
+    # 3P - 3S: components proportional to 2J+1 of 3P: 5 : 3 : 1 (Allen, Astrophysical
+    # Quantities, relative strengths in LS multiplets)  # from memory
+    c = _component(_pure_ls_lines(), "2p 3s 3P°", "2p 3p 3S")
+    assert c[(2.0, 1.0)] / c[(0.0, 1.0)] == pytest.approx(5.0, rel=1e-4)
+    assert c[(1.0, 1.0)] / c[(0.0, 1.0)] == pytest.approx(3.0, rel=1e-4)
+
+
+def test_3p_3d_pattern_against_table_and_6j():
+    # 3P - 3D line strengths (total 180): P2-D3 84, P2-D2 15, P2-D1 1, P1-D2 45, P1-D1 15,
+    # P0-D1 20 (Allen, Astrophysical Quantities; White & Eliason 1933)  # from memory
+    table = {(2, 3): 84, (2, 2): 15, (2, 1): 1, (1, 2): 45, (1, 1): 15, (0, 1): 20}
+    c = _component(_pure_ls_lines(), "2p 3s 3P°", "2p 3p 3D")
+    total = sum(c.values())
+    for (j, jp), rel in table.items():
+        assert c[(float(j), float(jp))] / total == pytest.approx(rel / 180, rel=1e-4)
+        # and the closed form S_J ~ (2J+1)(2J'+1){L J S; J' L' 1}^2 (Condon & Shortley 1935)
+        six = float(wigner_6j(1, j, 1, jp, 2, 1)) ** 2
+        assert c[(float(j), float(jp))] / total == pytest.approx(
+            (2 * j + 1) * (2 * jp + 1) * six / sum(
+                (2 * a + 1) * (2 * b + 1) * float(wigner_6j(1, a, 1, b, 2, 1)) ** 2
+                for a, b in table), rel=1e-4)
+
+
+def test_sum_rules_under_mixing():
+    # the fine-structure components add up to the multiplet strength, and the total strength
+    # of the transition array does not depend on the mixing (Condon & Shortley 1935;
+    # Cowan 1981, ch. 14)  # from memory
+    pure = _pure_ls_lines()
+    odd, even = Model("2p 3s"), Model("2p 3p")
+    so = odd.solve({"2p 3s: G1(2p,3s)": 300.0, "2p 3s: zeta(2p)": 900.0})
+    se = even.solve({"2p 3p: F2(2p,3p)": 2000.0, "2p 3p: G0(2p,3p)": 300.0,
+                     "2p 3p: G2(2p,3p)": 900.0, "2p 3p: zeta(2p)": 900.0,
+                     "2p 3p: zeta(3p)": 50.0})
+    mixed = line_strengths(DipoleModel(odd, even), so, se, {("3s", "3p"): 1.0})
+    total_pure = sum(s for *_, s in pure)
+    assert sum(s for *_, s in mixed) == pytest.approx(total_pure, rel=1e-10)
+    # one-electron 3s-3p with a 2p5 spectator: total = (2l+1 of core ... ) * max(l,l') * R^2:
+    # 6 core states x 2 spins x 1 (Cowan 1981)  # from memory
+    assert total_pure == pytest.approx(12.0, rel=1e-10)
+    multiplet = sum(s for la, lb, s in pure if la.label == "2p 3s 3P°" and lb.label == "2p 3p 3D")
+    assert multiplet == pytest.approx(sum(_component(pure, "2p 3s 3P°", "2p 3p 3D").values()))
