@@ -173,3 +173,59 @@ def line_strengths(dipole: DipoleModel, sol_a, sol_b, radial: dict[tuple[str, st
                 for j in range(S.shape[1]):
                     out.append((lev_a[i], lev_b[j], float(S[i, j])))
     return out
+
+
+@dataclass(frozen=True, eq=False)
+class PredictedLine:
+    """One E1 line: lower and upper level, wavenumber, wavelengths, S, gf and A."""
+
+    lower: object  # finefit.model.solution.Level
+    upper: object
+    wavenumber: float  # cm^-1
+    vacuum_wavelength: float  # angstrom
+    air_wavelength: float | None  # angstrom, None below 2000 A
+    S: float  # line strength, (e a0)^2
+    gf: float  # weighted absorption oscillator strength
+    A: float  # transition probability upper -> lower, s^-1
+
+
+def predict_lines(
+    dipole: DipoleModel,
+    sol_a,
+    sol_b,
+    radial: dict[tuple[str, str], float],
+    min_strength: float = 0.0,
+) -> list[PredictedLine]:
+    """Lines between two solutions, strongest first.
+
+    gf = (2/3) dE S and A = (4/3) alpha^3 dE^3 S / g_upper in atomic units (dE in hartree,
+    S in (e a0)^2; Cowan 1981, ch. 14); constants from scipy.constants.
+    """
+    from scipy.constants import fine_structure, physical_constants
+
+    from finefit.lines.wavelengths import reported_wavelength
+
+    hartree_cm = physical_constants["hartree-inverse meter relationship"][0] / 100.0
+    t_au = physical_constants["atomic unit of time"][0]
+    out = []
+    for la, lb, S in line_strengths(dipole, sol_a, sol_b, radial):
+        if S <= min_strength:
+            continue
+        lower, upper = (la, lb) if la.energy < lb.energy else (lb, la)
+        sigma = upper.energy - lower.energy
+        if sigma <= 0:
+            continue
+        de = sigma / hartree_cm
+        g_up = 2 * upper.J + 1
+        lam = 1e8 / sigma
+        air, in_air = reported_wavelength(lam, air_to=np.inf)
+        out.append(
+            PredictedLine(
+                lower=lower, upper=upper, wavenumber=sigma, vacuum_wavelength=lam,
+                air_wavelength=float(air) if in_air else None, S=S,
+                gf=2.0 / 3.0 * de * S,
+                A=4.0 / 3.0 * fine_structure**3 * de**3 * S / g_up / t_au,
+            )
+        )
+    out.sort(key=lambda x: -x.gf)
+    return out

@@ -85,3 +85,20 @@ def test_sum_rules_under_mixing():
     assert total_pure == pytest.approx(12.0, rel=1e-10)
     multiplet = sum(s for la, lb, s in pure if la.label == "2p 3s 3P°" and lb.label == "2p 3p 3D")
     assert multiplet == pytest.approx(sum(_component(pure, "2p 3s 3P°", "2p 3p 3D").values()))
+
+
+def test_lyman_alpha_transition_probability_and_wavelength():
+    # A(2p-1s) = 6.265e8 s^-1 (Wiese & Fuhr 2009, J. Phys. Chem. Ref. Data 38, 565;
+    # infinite nuclear mass here, so within 0.2 %)  # from memory
+    from finefit.lines.transitions import predict_lines
+
+    a, b = Model("1s"), Model("2p")
+    rydberg_cm = 109737.31568  # R_inf in cm-1 (CODATA)  # from memory
+    sa = a.solve({"1s: Eav": 0.0})
+    sb = b.solve({"2p: Eav": 0.75 * rydberg_cm})
+    lines = predict_lines(DipoleModel(a, b), sa, sb, {("1s", "2p"): 2**7 * np.sqrt(6) / 3**5})
+    total_A = sum(x.A * (2 * x.upper.J + 1) for x in lines) / 6.0  # mean over the 2p states
+    assert total_A == pytest.approx(6.265e8, rel=2e-3)
+    assert lines[0].vacuum_wavelength == pytest.approx(1215.0, abs=1.0)  # Lyman alpha
+    assert lines[0].air_wavelength is None  # below 2000 A: vacuum (common practice)
+    assert sum(x.gf for x in lines) / 2 == pytest.approx(0.4162, abs=2e-4)
