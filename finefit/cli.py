@@ -411,6 +411,48 @@ def cmd_abinitio(args) -> int:
     return EXIT_OK
 
 
+def cmd_lines(args) -> int:
+    s = _load(args.session)
+    radial = {}
+    for item in args.radial or []:
+        try:
+            pair, value = item.split("=", 1)
+            a, b = (x.strip() for x in pair.split(","))
+        except ValueError:
+            raise FinefitError(f"--radial {item!r} must look like 3s,3p=4.5", item) from None
+        radial[(a, b)] = _float(value, f"--radial {pair}")
+    with _err_console().status("line strengths (Hartree-Fock for missing radial integrals)"):
+        lines, used = s.predict_lines(radial)
+    lines = [x for x in lines if x.gf >= args.min_gf][: args.limit]
+    if args.json:
+        _json({
+            "radial_integrals": [{"a": a, "b": b, "bohr": v} for (a, b), v in used.items()],
+            "lines": [
+                {"lower": {"J": x.lower.J, "energy": x.lower.energy, "label": x.lower.label},
+                 "upper": {"J": x.upper.J, "energy": x.upper.energy, "label": x.upper.label},
+                 "wavenumber": x.wavenumber, "vacuum_wavelength": x.vacuum_wavelength,
+                 "air_wavelength": x.air_wavelength, "S": x.S, "gf": x.gf, "A": x.A}
+                for x in lines
+            ],
+        })
+        return EXIT_OK
+    con = _console(args)
+    tab = Table(title="Predicted electric-dipole lines (strongest first)", title_justify="left")
+    for c in ("λ air (Å)", "λ vac (Å)", "σ (cm-1)", "lower", "J", "upper", "J'", "gf", "A (s-1)"):
+        tab.add_column(c, justify="left" if c in ("lower", "upper") else "right")
+    for x in lines:
+        tab.add_row("" if x.air_wavelength is None else f"{x.air_wavelength:.3f}",
+                    f"{x.vacuum_wavelength:.3f}", f"{x.wavenumber:.2f}", Text(x.lower.label),
+                    format_j(x.lower.J), Text(x.upper.label), format_j(x.upper.J),
+                    f"{x.gf:.3g}", f"{x.A:.3g}")
+    con.print(tab)
+    con.print("radial integrals (bohr): " + ", ".join(
+        f"<{a}|r|{b}> = {v:.4f}" for (a, b), v in used.items()))
+    con.print(Text(CAUTION + " Ab initio gf values are typically good to tens of per cent.",
+                   style="dim"))
+    return EXIT_OK
+
+
 def cmd_workspace(args) -> int:
     from finefit.ui.app import make_app
 
@@ -455,6 +497,14 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--relativistic", action="store_true",
                     help="add mass-velocity and Darwin corrections to E_av")
     sp.set_defaults(func=cmd_abinitio)
+
+    sp = add("lines", "predicted E1 lines between the session's even and odd levels")
+    sp.add_argument("--radial", action="append", metavar="A,B=BOHR",
+                    help="radial dipole integral <A|r|B>, e.g. 3s,3p=4.5 (others from "
+                    "Hartree-Fock)")
+    sp.add_argument("--min-gf", type=float, default=0.0, help="omit weaker lines")
+    sp.add_argument("--limit", type=int, default=50, help="at most this many lines")
+    sp.set_defaults(func=cmd_lines)
 
     sp = add("workspace", "open the interactive terminal workspace on a session",
              json_flag=False)

@@ -336,6 +336,32 @@ class Session:
                 self.parameters[name].value = res.start[name]
         return res
 
+    def predict_lines(
+        self,
+        radial: dict[tuple[str, str], float] | None = None,
+        min_strength: float = 0.0,
+    ):
+        """E1 lines between the session's even and odd levels at the current values.
+
+        Radial dipole integrals (bohr) not given in ``radial`` come from Hartree-Fock runs.
+        Returns (lines, radial integrals used).
+        """
+        from finefit.lines.radial_join import ab_initio_dipoles
+        from finefit.lines.transitions import DipoleModel, predict_lines
+
+        if set(self.models) != {"even", "odd"}:
+            raise FinefitError(
+                "predicting lines needs configurations of both parities in the session",
+                "configurations",
+            )
+        dip = DipoleModel(self.models["even"], self.models["odd"])
+        given = dict(radial or {})
+        missing = [p for p in dip.pair_names if p not in given and p[::-1] not in given]
+        if missing:
+            given.update(ab_initio_dipoles(self.models, missing, self.ion.Z, self.ion.charge))
+        sols = self.solve()
+        return predict_lines(dip, sols["even"], sols["odd"], given, min_strength), given
+
     # ------------------------------------------------------------------ parameter sets
     def keep(self, result: FitResult, name: str, note: str = "") -> ParameterSet:
         """Store a fit as a named, timestamped parameter set."""

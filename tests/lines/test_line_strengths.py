@@ -102,3 +102,34 @@ def test_lyman_alpha_transition_probability_and_wavelength():
     assert lines[0].vacuum_wavelength == pytest.approx(1215.0, abs=1.0)  # Lyman alpha
     assert lines[0].air_wavelength is None  # below 2000 A: vacuum (common practice)
     assert sum(x.gf for x in lines) / 2 == pytest.approx(0.4162, abs=2e-4)
+
+
+def test_session_lines_with_ab_initio_dipole(tmp_path, capsys):
+    # Na I resonance doublet with Hartree-Fock <3s|r|3p>: |<3s|r|3p>| about 4.5 bohr
+    # (HF without core polarisation; the measured-f value corresponds to about 4.3)
+    # from memory; the D2/D1 gf ratio is 2 (LS), the D lines near 5890/5896 A in air.
+    import json
+
+    from finefit.cli import main
+    from finefit.session import Session
+
+    s = Session.new(["3s", "3p"], Z=11)
+    s.set_parameter("3p: Eav", 16960.0)
+    s.set_parameter("3p: zeta(3p)", 11.5)
+    lines, radial = s.predict_lines()
+    assert 4.0 < abs(radial[("3s", "3p")]) < 5.0
+    d2, d1 = lines
+    assert d2.S / d1.S == pytest.approx(2.0, rel=1e-9)
+    assert d2.gf / d1.gf == pytest.approx(2.0, rel=5e-3)  # gf carries the wavenumber too
+    assert d2.air_wavelength == pytest.approx(5892.6, abs=0.1)
+    p = tmp_path / "na.toml"
+    s.save(p)
+    assert main(["lines", str(p), "--radial", "3s,3p=4.26", "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert len(out["lines"]) == 2 and out["radial_integrals"][0]["bohr"] == 4.26
+    assert main(["lines", str(p), "--radial", "oops"]) == 2
+    one = Session.new(["3s"], Z=11)
+    from finefit import FinefitError
+
+    with pytest.raises(FinefitError):
+        one.predict_lines()
