@@ -8,6 +8,7 @@ import os
 import sys
 from pathlib import Path
 
+import numpy as np
 from rich.console import Console
 from rich.table import Table
 from rich.text import Text
@@ -453,6 +454,70 @@ def cmd_lines(args) -> int:
     return EXIT_OK
 
 
+def cmd_classify(args) -> int:
+    from finefit.lines.classify import classify_lines
+    from finefit.storage.line_tables import read_lines
+
+    s = _load(args.session)
+    ll = read_lines(args.lines, args.medium)
+    c = classify_lines(s.known_levels(), ll.wavenumber, args.tolerance, ll.uncertainty
+                       if ll.uncertainty is not None and np.all(np.isfinite(ll.uncertainty))
+                       else None)
+    if args.json:
+        _json({
+            "n_lines": int(ll.wavenumber.size), "n_classified": c.n_classified,
+            "lines": [{"line": int(ll.source_lines[i]), "wavenumber": float(ll.wavenumber[i]),
+                       "matches": [{"lower": a, "upper": b, "obs_minus_ritz": d}
+                                   for a, b, d in c.matches[i]]}
+                      for i in range(ll.wavenumber.size)],
+            "unclassified": [int(ll.source_lines[i]) for i in c.unclassified],
+            "disagreeing_levels": c.disagreeing,
+        })
+        return EXIT_OK
+    con = _console(args)
+    con.print(f"{c.n_classified} of {ll.wavenumber.size} lines classified within "
+              f"{args.tolerance} cm-1; {len(c.unclassified)} unclassified")
+    tab = Table(title="Levels and their lines", title_justify="left")
+    for col in ("level", "lines", "mean (obs-Ritz)/u"):
+        tab.add_column(col, justify="left" if col == "level" else "right")
+    for lid, (n, mean) in sorted(c.level_offsets.items()):
+        tab.add_row(Text(lid + (" (disagrees)" if lid in c.disagreeing else "")), str(n),
+                    f"{mean:+.2f}")
+    con.print(tab)
+    return EXIT_OK
+
+
+def cmd_search(args) -> int:
+    from finefit.lines.classify import classify_lines, search_level
+    from finefit.notation.jvalues import parse_j
+    from finefit.storage.line_tables import read_lines
+
+    s = _load(args.session)
+    ll = read_lines(args.lines, args.medium)
+    known = s.known_levels()
+    c = classify_lines(known, ll.wavenumber, args.tolerance)
+    free = ll.wavenumber[c.unclassified]
+    _, _, cands = search_level(known, parse_j(args.J), args.parity, args.energy, free,
+                               args.tolerance, args.window, args.step, top=args.top)
+    if args.json:
+        _json([{"energy": x.energy, "score": x.score,
+                "lines": [{"wavenumber": a, "level": b, "weight": w} for a, b, w in x.lines]}
+               for x in cands])
+        return EXIT_OK
+    con = _console(args)
+    tab = Table(title=f"Candidate positions for J = {args.J} ({args.parity}) near "
+                f"{args.energy} cm-1", title_justify="left")
+    for col in ("energy", "score", "lines explained (wavenumber -> known level)"):
+        tab.add_column(col, justify="left" if col.startswith("lines") else "right")
+    for x in cands:
+        tab.add_row(f"{x.energy:.3f}", f"{x.score:.2f}",
+                    Text("  ".join(f"{a:.3f}→{b}" for a, b, _ in x.lines)))
+    con.print(tab)
+    con.print(Text("A candidate is only a suggestion: confirm it with intensities, g-factors "
+                   "or isotope structure before adopting the level.", style="dim"))
+    return EXIT_OK
+
+
 def cmd_workspace(args) -> int:
     from finefit.ui.app import make_app
 
@@ -505,6 +570,24 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--min-gf", type=float, default=0.0, help="omit weaker lines")
     sp.add_argument("--limit", type=int, default=50, help="at most this many lines")
     sp.set_defaults(func=cmd_lines)
+
+    sp = add("classify", "classify an observed line list by Ritz combinations of the levels")
+    sp.add_argument("lines", help="line list (wavenumber or wavelength column)")
+    sp.add_argument("--tolerance", type=float, default=0.05, help="cm-1 (default 0.05)")
+    sp.add_argument("--medium", choices=("air", "vacuum"), help="medium of the wavelengths")
+    sp.set_defaults(func=cmd_classify)
+
+    sp = add("search", "search a missing level among the unclassified lines")
+    sp.add_argument("lines", help="line list (wavenumber or wavelength column)")
+    sp.add_argument("--J", required=True, help="J of the missing level, e.g. 5/2")
+    sp.add_argument("--parity", required=True, choices=("even", "odd"))
+    sp.add_argument("--energy", type=float, required=True, help="predicted energy, cm-1")
+    sp.add_argument("--window", type=float, default=500.0, help="+- cm-1 (default 500)")
+    sp.add_argument("--step", type=float, default=0.01, help="cm-1 (default 0.01)")
+    sp.add_argument("--tolerance", type=float, default=0.05, help="cm-1 (default 0.05)")
+    sp.add_argument("--top", type=int, default=10)
+    sp.add_argument("--medium", choices=("air", "vacuum"))
+    sp.set_defaults(func=cmd_search)
 
     sp = add("workspace", "open the interactive terminal workspace on a session",
              json_flag=False)

@@ -362,6 +362,12 @@ class Session:
         sols = self.solve()
         return predict_lines(dip, sols["even"], sols["odd"], given, min_strength), given
 
+    def known_levels(self):
+        """The observed levels as known levels for line classification."""
+        from finefit.lines.classify import KnownLevel
+
+        return [KnownLevel(lv.id, lv.energy, lv.J, lv.parity) for lv in self.levels]
+
     # ------------------------------------------------------------------ parameter sets
     def keep(self, result: FitResult, name: str, note: str = "") -> ParameterSet:
         """Store a fit as a named, timestamped parameter set."""
