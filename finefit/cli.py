@@ -518,6 +518,20 @@ def cmd_search(args) -> int:
     return EXIT_OK
 
 
+def cmd_publish(args) -> int:
+    from finefit.reports.publication import publication_tables
+    from finefit.storage.atomic import atomic_write_text
+
+    s = _load(args.session)
+    r = s.fit() if args.fit else s.report()
+    out = Path(args.output)
+    written = []
+    for name, text in publication_tables(r, s.ion.name).items():
+        written.append(atomic_write_text(out / name, text, backup=True))
+    _console(args).print("wrote " + ", ".join(str(p) for p in written))
+    return EXIT_OK if r.converged else EXIT_NOT_CONVERGED
+
+
 def cmd_workspace(args) -> int:
     from finefit.ui.app import make_app
 
@@ -588,6 +602,12 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--top", type=int, default=10)
     sp.add_argument("--medium", choices=("air", "vacuum"))
     sp.set_defaults(func=cmd_search)
+
+    sp = add("publish", "LaTeX (booktabs) and CSV tables of parameters and levels",
+             json_flag=False)
+    sp.add_argument("output", help="folder for parameters.tex/.csv and levels.tex/.csv")
+    sp.add_argument("--fit", action="store_true", help="fit first (default: current values)")
+    sp.set_defaults(func=cmd_publish)
 
     sp = add("workspace", "open the interactive terminal workspace on a session",
              json_flag=False)

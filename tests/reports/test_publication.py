@@ -1,0 +1,41 @@
+"""Publication tables: LaTeX (booktabs) and CSV (RFC 4180) output."""
+
+import csv
+import io
+import shutil
+from pathlib import Path
+
+from finefit.cli import main
+from finefit.reports.publication import latex_escape, publication_tables
+from finefit.session import load
+
+SAMPLE = Path(__file__).resolve().parents[2] / "sample_sessions" / "kestrel_neon_like.toml"
+
+
+def test_tables_from_a_fit():
+    s = load(SAMPLE)
+    r = s.fit()
+    files = publication_tables(r, "Nk I (invented)")
+    tex = files["parameters.tex"]
+    assert r"\toprule" in tex and r"\midrule" in tex and r"\bottomrule" in tex  # booktabs
+    assert tex.count(r"\\") >= len(r.values) + 1
+    rows = list(csv.reader(io.StringIO(files["levels.csv"])))
+    assert rows[0][:4] == ["J", "E obs", "E calc", "O-C"]
+    assert len(rows) == 1 + len(r.levels)
+    params = list(csv.reader(io.StringIO(files["parameters.csv"])))
+    assert {row[0] for row in params[1:]} == set(r.values)
+    assert "$^\\circ$" in files["levels.tex"] or "°" not in "".join(x.label for x in r.levels)
+
+
+def test_latex_escape():
+    assert latex_escape("a_b & 50%") == r"a\_b \& 50\%"
+    assert latex_escape("2p5(2P°)3p") == r"2p5(2P$^\circ$)3p"
+
+
+def test_publish_command(tmp_path):
+    p = tmp_path / "s.toml"
+    shutil.copy(SAMPLE, p)
+    out = tmp_path / "tables"
+    assert main(["publish", str(p), str(out), "--fit"]) == 0
+    assert sorted(x.name for x in out.iterdir()) == ["levels.csv", "levels.tex",
+                                                    "parameters.csv", "parameters.tex"]
