@@ -25,16 +25,25 @@ def _num(x: float | None, digits: int) -> str:
     return f"{x:.{digits}f}"
 
 
+def _decimals(err: float) -> int:
+    """Decimals that show two significant digits of an error (the usual convention)."""
+    if not err or not math.isfinite(err) or err <= 0:
+        return 0
+    return max(0, 1 - math.floor(math.log10(err)))
+
+
 def parameter_rows(r: FitResult) -> list[list[str]]:
     rows = []
     for name, value in r.values.items():
         status = r.status[name]
-        err = "" if status in ("fixed", "at bound", "undetermined") else _num(r.errors[name], 0)
+        has_err = status not in ("fixed", "at bound", "undetermined")
+        d = _decimals(r.errors[name]) if has_err else 0
+        err = _num(r.errors[name], d) if has_err else ""
         ratio = r.ratios[name]
         ab = ""
         if r.ratio_reference[name] == "ab initio" and ratio:
             ab = _num(value / ratio, 0)
-        rows.append([name, _num(value, 0), err, ab,
+        rows.append([name, _num(value, d), err, ab,
                      "" if ratio is None or r.ratio_reference[name] != "ab initio"
                      else f"{ratio:.3f}",
                      {"varied": "", "linked": "l", "fixed": "f", "at bound": "b",
