@@ -532,6 +532,29 @@ def cmd_publish(args) -> int:
     return EXIT_OK if r.converged else EXIT_NOT_CONVERGED
 
 
+def cmd_figures(args) -> int:
+    from finefit.reports import figures
+
+    s = _load(args.session)
+    r = s.fit() if args.fit else s.report()
+    out = Path(args.output)
+    written = []
+    for ext in args.format:
+        written.append(figures.oc_figure(r, out / f"oc.{ext}"))
+        written.append(figures.level_diagram_figure(r, out / f"levels.{ext}"))
+    if set(s.models) == {"even", "odd"}:
+        observed = None
+        if args.lines:
+            from finefit.storage.line_tables import read_lines
+
+            observed = read_lines(args.lines).wavenumber
+        lines, _ = s.predict_lines()
+        for ext in args.format:
+            written.append(figures.stick_spectrum_figure(lines, observed, out / f"lines.{ext}"))
+    _console(args).print("wrote " + ", ".join(str(p) for p in written))
+    return EXIT_OK
+
+
 def cmd_workspace(args) -> int:
     from finefit.ui.app import make_app
 
@@ -608,6 +631,14 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("output", help="folder for parameters.tex/.csv and levels.tex/.csv")
     sp.add_argument("--fit", action="store_true", help="fit first (default: current values)")
     sp.set_defaults(func=cmd_publish)
+
+    sp = add("figures", "O-C, level diagram and stick-spectrum figures (PNG and PDF)",
+             json_flag=False)
+    sp.add_argument("output", help="folder for the figures")
+    sp.add_argument("--fit", action="store_true", help="fit first (default: current values)")
+    sp.add_argument("--lines", help="observed line list to draw under the predicted lines")
+    sp.add_argument("--format", nargs="+", default=["png", "pdf"], choices=("png", "pdf"))
+    sp.set_defaults(func=cmd_figures)
 
     sp = add("workspace", "open the interactive terminal workspace on a session",
              json_flag=False)

@@ -39,3 +39,26 @@ def test_publish_command(tmp_path):
     assert main(["publish", str(p), str(out), "--fit"]) == 0
     assert sorted(x.name for x in out.iterdir()) == ["levels.csv", "levels.tex",
                                                     "parameters.csv", "parameters.tex"]
+
+
+def test_figures_command(tmp_path):
+    p = tmp_path / "s.toml"
+    shutil.copy(SAMPLE, p)
+    out = tmp_path / "fig"
+    assert main(["figures", str(p), str(out)]) == 0
+    assert (out / "oc.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (RFC 2083)
+    assert (out / "levels.pdf").read_bytes()[:5] == b"%PDF-"  # PDF header (ISO 32000)
+
+
+def test_stick_spectrum(tmp_path):
+    import numpy as np
+
+    from finefit.reports.figures import stick_spectrum_figure
+    from finefit.session import Session
+
+    s = Session.new(["3s", "3p"], Z=11)
+    s.set_parameter("3p: Eav", 16960.0)
+    s.set_parameter("3p: zeta(3p)", 11.5)
+    lines, _ = s.predict_lines({("3s", "3p"): 4.3})
+    f = stick_spectrum_figure(lines, np.array([16956.2, 16973.4]), tmp_path / "l.png")
+    assert f.stat().st_size > 1000
