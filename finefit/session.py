@@ -343,8 +343,10 @@ class Session:
     ):
         """E1 lines between the session's even and odd levels at the current values.
 
-        Radial dipole integrals (bohr) not given in ``radial`` come from Hartree-Fock runs.
-        Returns (lines, radial integrals used).
+        Wavenumbers come from the calculated energies, their uncertainties from the
+        covariance of a fit at the current set-up (combined in quadrature for the two
+        parities). Radial dipole integrals (bohr) not given in ``radial`` come from
+        Hartree-Fock runs. Returns (lines, radial integrals used).
         """
         from finefit.lines.radial_join import ab_initio_dipoles
         from finefit.lines.transitions import DipoleModel, predict_lines
@@ -359,8 +361,22 @@ class Session:
         missing = [p for p in dip.pair_names if p not in given and p[::-1] not in given]
         if missing:
             given.update(ab_initio_dipoles(self.models, missing, self.ion.Z, self.ion.charge))
-        sols = self.solve()
-        return predict_lines(dip, sols["even"], sols["odd"], given, min_strength), given
+        # calculated energies at the current values; their uncertainties are propagated
+        # from the covariance of the fit set-up (Hellmann-Feynman gradients)
+        result = self.report()
+        sols = result.solutions
+        unc = {}
+        for row in result.levels:
+            unc[(row.parity, round(2 * row.J), row.state_rank - 1)] = row.calc_uncertainty
+        for p in result.predictions:
+            unc[(p.parity, round(2 * p.J), p.state_rank - 1)] = p.uncertainty
+
+        def level_uncertainty(level):
+            return unc.get((level.parity, level.block, level.position))
+
+        lines = predict_lines(dip, sols["even"], sols["odd"], given, min_strength,
+                              level_uncertainty)
+        return lines, given
 
     def known_levels(self):
         """The observed levels as known levels for line classification."""

@@ -187,6 +187,8 @@ class PredictedLine:
     S: float  # line strength, (e a0)^2
     gf: float  # weighted absorption oscillator strength
     A: float  # transition probability upper -> lower, s^-1
+    wavenumber_uncertainty: float | None = None  # cm^-1, from the level uncertainties
+    wavelength_uncertainty: float | None = None  # angstrom (vacuum; air differs by < 0.03 %)
 
 
 def predict_lines(
@@ -195,8 +197,13 @@ def predict_lines(
     sol_b,
     radial: dict[tuple[str, str], float],
     min_strength: float = 0.0,
+    level_uncertainty=None,
 ) -> list[PredictedLine]:
     """Lines between two solutions, strongest first.
+
+    ``level_uncertainty(level)`` gives each level's energy uncertainty (cm^-1); the two
+    levels of a line belong to sets of opposite parity with their own parameters, so
+    their errors are combined in quadrature.
 
     gf = (2/3) dE S and A = (4/3) alpha^3 dE^3 S / g_upper in atomic units (dE in hartree,
     S in (e a0)^2; Cowan 1981, ch. 14); constants from scipy.constants.
@@ -219,12 +226,19 @@ def predict_lines(
         g_up = 2 * upper.J + 1
         lam = 1e8 / sigma
         air, in_air = reported_wavelength(lam, air_to=np.inf)
+        du = dl = None
+        if level_uncertainty is not None:
+            ul, uu = level_uncertainty(lower), level_uncertainty(upper)
+            if ul is not None and uu is not None:
+                du = float(np.hypot(ul, uu))
+                dl = lam**2 * du / 1e8
         out.append(
             PredictedLine(
                 lower=lower, upper=upper, wavenumber=sigma, vacuum_wavelength=lam,
                 air_wavelength=float(air) if in_air else None, S=S,
                 gf=2.0 / 3.0 * de * S,
                 A=4.0 / 3.0 * fine_structure**3 * de**3 * S / g_up / t_au,
+                wavenumber_uncertainty=du, wavelength_uncertainty=dl,
             )
         )
     out.sort(key=lambda x: -x.gf)

@@ -133,3 +133,24 @@ def test_session_lines_with_ab_initio_dipole(tmp_path, capsys):
 
     with pytest.raises(FinefitError):
         one.predict_lines()
+
+
+def test_line_wavelength_uncertainties_follow_the_fit():
+    # invented data: Na-like doublet; after a fit the line positions carry the propagated
+    # uncertainties, dlambda = lambda^2 dsigma / 1e8 (differentiating lambda = 1e8/sigma)
+    from finefit.session import Session
+
+    s = Session.new(["3s", "3p"], Z=11)
+    s.set_parameter("3p: Eav", 16960.0, vary=True)
+    s.set_parameter("3p: zeta(3p)", 11.0, vary=True)
+    s.add_level(energy=16956.17, J=0.5, parity="odd")
+    s.add_level(energy=16973.37, J=1.5, parity="odd")
+    s.add_level(energy=0.0, J=0.5, parity="even")
+    s.set_parameter("3s: Eav", 0.0, vary=False)
+    r = s.fit()
+    s.apply(r)
+    lines, _ = s.predict_lines({("3s", "3p"): 4.3})
+    for x in lines:
+        assert x.wavenumber_uncertainty is not None
+        assert x.wavelength_uncertainty == pytest.approx(
+            x.vacuum_wavelength**2 * x.wavenumber_uncertainty / 1e8)
