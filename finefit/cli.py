@@ -488,23 +488,26 @@ def cmd_classify(args) -> int:
 
 
 def cmd_search(args) -> int:
-    from finefit.lines.classify import classify_lines, search_level
     from finefit.notation.jvalues import parse_j
     from finefit.storage.line_tables import read_lines
 
     s = _load(args.session)
     ll = read_lines(args.lines, args.medium)
-    known = s.known_levels()
-    c = classify_lines(known, ll.wavenumber, args.tolerance)
-    free = ll.wavenumber[c.unclassified]
-    _, _, cands = search_level(known, parse_j(args.J), args.parity, args.energy, free,
-                               args.tolerance, args.window, args.step, top=args.top)
+    parse_j(args.J, "--J")
+    with _err_console().status("searching (predicted strengths need line strengths)"):
+        cands, weights = s.search_level(ll.wavenumber, args.J, args.parity, args.energy,
+                                        args.tolerance, args.window, args.step,
+                                        weighted=not args.unweighted, top=args.top)
     if args.json:
         _json([{"energy": x.energy, "score": x.score,
                 "lines": [{"wavenumber": a, "level": b, "weight": w} for a, b, w in x.lines]}
                for x in cands])
         return EXIT_OK
     con = _console(args)
+    if weights is None:
+        con.print("lines counted alike (no predicted strengths)")
+    else:
+        con.print("lines weighted by predicted gf relative to the strongest")
     tab = Table(title=f"Candidate positions for J = {args.J} ({args.parity}) near "
                 f"{args.energy} cm-1", title_justify="left")
     for col in ("energy", "score", "lines explained (wavenumber -> known level)"):
@@ -624,6 +627,8 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--tolerance", type=float, default=0.05, help="cm-1 (default 0.05)")
     sp.add_argument("--top", type=int, default=10)
     sp.add_argument("--medium", choices=("air", "vacuum"))
+    sp.add_argument("--unweighted", action="store_true",
+                    help="count every explained line as 1 instead of its predicted gf")
     sp.set_defaults(func=cmd_search)
 
     sp = add("publish", "LaTeX (booktabs) and CSV tables of parameters and levels",

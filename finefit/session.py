@@ -378,6 +378,59 @@ class Session:
                               level_uncertainty)
         return lines, given
 
+    def search_level(
+        self,
+        wavenumbers,
+        J: float | str,
+        parity: str,
+        energy: float,
+        tolerance: float = 0.05,
+        window: float = 500.0,
+        step: float = 0.01,
+        weighted: bool = True,
+        radial: dict[tuple[str, str], float] | None = None,
+        top: int = 10,
+    ):
+        """Candidate positions of a missing level among the lines no known level explains.
+
+        With ``weighted`` (and both parities in the session) each explained line counts
+        with the predicted gf of that transition from the model state of this J and parity
+        nearest to ``energy``, relative to the strongest; otherwise each counts 1.
+        Returns (candidates, weights used or None).
+        """
+        import numpy as np
+
+        from finefit.lines.classify import classify_lines
+        from finefit.lines.classify import search_level as search
+
+        j = parse_j(J)
+        known = self.known_levels()
+        w = np.asarray(wavenumbers, dtype=float)
+        c = classify_lines(known, w, tolerance)
+        weights = None
+        if weighted and set(self.models) == {"even", "odd"}:
+            lines, _ = self.predict_lines(radial)
+            result = self.last_result
+            owner = {(row.parity, round(2 * row.J), row.state_rank - 1): row.id
+                     for row in result.levels}
+            sol = result.solutions[parity]
+            cands = [lev for lev in sol.levels if lev.block == round(2 * j)]
+            if cands:
+                target = min(cands, key=lambda lev: abs(lev.energy - energy))
+                key_t = (parity, target.block, target.position)
+                weights = {}
+                for x in lines:
+                    for a, b in ((x.lower, x.upper), (x.upper, x.lower)):
+                        if (a.parity, a.block, a.position) == key_t:
+                            lid = owner.get((b.parity, b.block, b.position))
+                            if lid is not None:
+                                weights[lid] = max(weights.get(lid, 0.0), x.gf)
+                top_gf = max(weights.values(), default=0.0)
+                weights = {k: v / top_gf for k, v in weights.items()} if top_gf > 0 else None
+        _, _, found = search(known, j, parity, energy, w[c.unclassified], tolerance, window,
+                             step, weights, top)
+        return found, weights
+
     def known_levels(self):
         """The observed levels as known levels for line classification."""
         from finefit.lines.classify import KnownLevel

@@ -99,4 +99,12 @@ def test_cli_classify_and_search(tmp_path, capsys):
                  missing.parity, "--energy", str(missing.energy + 120), "--json"]) == 0
     cands = json.loads(capsys.readouterr().out)
     assert cands[0]["energy"] == pytest.approx(missing.energy, abs=0.05)
+    # weighted by the model's predicted gf of each transition from the missing state
+    w = 1e8 / __import__("finefit").air_to_vacuum(
+        [float(x.split()[0]) for x in table.read_text().splitlines()[1:]])
+    found, weights = s.search_level(w, missing.J, missing.parity, missing.energy + 120,
+                                    radial={("3s", "3p"): 3.0, ("2p", "3s"): 1.0})
+    assert weights and max(weights.values()) == pytest.approx(1.0)
+    assert all(0 <= v <= 1 for v in weights.values())
+    assert found[0].energy == pytest.approx(missing.energy, abs=0.05)
     assert main(["classify", str(p), str(tmp_path / "none.txt")]) == 2
