@@ -67,6 +67,9 @@ class WorkspaceApp(App):
         self.fit_landed: list[float] = []  # perf_counter times of applied fit results
         self.diagram_choice = 0  # 0: all configurations, k: the k-th
         self.wide_table = False
+        self.lines_cache: tuple[int, list] | None = None  # (generation, predicted lines)
+        self.radial_cache: dict = {}
+        self.lines_running = False
 
     # ------------------------------------------------------------------ layout
     def compose(self) -> ComposeResult:
@@ -85,6 +88,9 @@ class WorkspaceApp(App):
                 yield Static("", id="resid-plot", markup=False)
             with TabPane("Diagram", id="diagram"):
                 yield Static("", id="diagram-plot", markup=False)
+            with TabPane("Lines", id="lines"):
+                yield Static("", id="lines-note", markup=False)
+                yield DataTable(id="lines-table", cursor_type="row")
         yield Static("", id="status", markup=False)
         yield Footer()
 
@@ -111,6 +117,12 @@ class WorkspaceApp(App):
         columns.append(("flags", "", None))
         for key, label, width in columns:
             lt.add_column(label, key=key, width=width)
+        ln = self.query_one("#lines-table", DataTable)
+        for key, label, width in (("air", "λ air (Å)", 11), ("vac", "λ vac (Å)", 11),
+                                  ("sigma", "σ (cm-1)", 10), ("unc", "± (cm-1)", 8),
+                                  ("other", "other level", None), ("J", "J", 5),
+                                  ("gf", "gf", 8), ("A", "A (s-1)", 9)):
+            ln.add_column(label, key=key, width=width)
         pt = self.query_one("#params-table", DataTable)
         for key, label in (("name", "parameter"), ("value", "value"), ("err", "± error"),
                            ("state", "status"), ("link", "link"), ("bounds", "bounds"),
@@ -185,6 +197,7 @@ class WorkspaceApp(App):
         if self.result is not None:
             self.previous_sigma = self.result.sigma
         self.result = result
+        self.lines_cache = None  # predicted lines follow the new fit
         self.fits_done += 1
         self.fit_landed.append(time.perf_counter())
         self.refresh_all()
@@ -199,6 +212,8 @@ class WorkspaceApp(App):
         self.refresh_params()
         self.refresh_pictures()
         self.refresh_detail()
+        if self._tab() == "lines":
+            self.refresh_lines()
         self.update_status()
 
     def _rows_by_id(self) -> dict:
@@ -437,6 +452,69 @@ class WorkspaceApp(App):
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         if event.data_table.id == "levels-table":
             self.refresh_detail()
+
+    # ------------------------------------------------------------------ lines view
+    def refresh_lines(self) -> None:
+        note = self.query_one("#lines-note", Static)
+        table = self.query_one("#lines-table", DataTable)
+        table.clear()
+        s = self.ws.session
+        if set(s.models) != {"even", "odd"}:
+            note.update(Text("Predicted lines need configurations of both parities in the "
+                             "session."))
+            return
+        if self.lines_cache is None or self.lines_cache[0] != self.ws.generation:
+            note.update(Text("computing line strengths (Hartree-Fock dipole integrals the "
+                             "first time)…"))
+            if not self.lines_running and self.result is not None:
+                self.lines_running = True
+                at_fit = s.copy()
+                at_fit.apply(self.result)  # lines at the fitted values, not the start ones
+                self._lines_worker(at_fit, self.ws.generation, dict(self.radial_cache))
+            return
+        lid = self.selected_level_id()
+        row = self._rows_by_id().get(lid) if lid else None
+        if row is None:
+            note.update(Text("select an attached level in the levels view"))
+            return
+        key = (row.parity, round(2 * row.J), row.state_rank - 1)
+        mine = []
+        for x in self.lines_cache[1]:
+            for a, b in ((x.lower, x.upper), (x.upper, x.lower)):
+                if (a.parity, a.block, a.position) == key:
+                    mine.append((x, b))
+        note.update(Text(f"{len(mine)} predicted lines of {row.id} (J = {format_j(row.J)}, "
+                         f"{row.parity}), strongest first. Wavelengths from calculated "
+                         "energies; check them against the spectrum."))
+        for x, other in mine[:200]:
+            table.add_row(
+                Text("" if x.air_wavelength is None else f"{x.air_wavelength:.3f}"),
+                Text(f"{x.vacuum_wavelength:.3f}"), Text(f"{x.wavenumber:.2f}"),
+                Text("" if x.wavenumber_uncertainty is None else
+                     f"{x.wavenumber_uncertainty:.2f}"),
+                Text(other.label), Text(format_j(other.J)), Text(f"{x.gf:.3g}"),
+                Text(f"{x.A:.3g}"))
+
+    @work(thread=True, exclusive=True, group="lines", exit_on_error=False)
+    def _lines_worker(self, session, generation: int, radial: dict) -> None:
+        try:
+            lines, used = session.predict_lines(radial)
+        except Exception as exc:  # noqa: BLE001 - shown in the view
+            self.call_from_thread(self._lines_failed, str(exc))
+            return
+        self.call_from_thread(self._lines_done, generation, lines, used)
+
+    def _lines_done(self, generation: int, lines, used) -> None:
+        self.lines_running = False
+        self.radial_cache.update(used)
+        self.lines_cache = (generation, lines) if generation == self.ws.generation else None
+        if self._tab() == "lines":
+            self.refresh_lines()
+
+    def _lines_failed(self, message: str) -> None:
+        self.lines_running = False
+        self.query_one("#lines-note", Static).update(Text(f"cannot predict lines: {message}",
+                                                          style="bold red"))
 
     def on_resize(self, event) -> None:
         if self.result is not None:
@@ -756,6 +834,9 @@ class WorkspaceApp(App):
             self.query_one("#levels-table").focus()
         elif name == "corr":
             self.query_one("#corr-table").focus()
+        elif name == "lines":
+            self.query_one("#lines-table").focus()  # focus in another pane would switch back
+            self.refresh_lines()
 
     def action_cycle_diagram(self) -> None:
         if self._modal_open() or self.result is None:

@@ -51,6 +51,8 @@ COMMANDS: tuple[Command, ...] = (
     Command("show_tab('resid')", "4", "O-C plot", "O-C against energy", show=False),
     Command("show_tab('diagram')", "5", "Level diagram", "Levels by configuration and J",
             show=False),
+    Command("show_tab('lines')", "6", "Lines of the level", "Predicted E1 lines of the "
+            "selected level (needs both parities)", show=False),
     Command("cycle_diagram", "c", "Diagram configuration", "Show one configuration (or all) "
             "in the level diagram", show=False),
     Command("help", "question_mark,f1", "Keys", "List every key"),

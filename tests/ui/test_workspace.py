@@ -252,3 +252,33 @@ def test_workspace_edit_rolls_back_on_bad_input(session_file):
         ws.edit("bad", lambda s: s.update_level("L001", J=9))
     assert ws.session.to_toml() == before
     assert not ws.undo_stack and not ws.dirty
+
+
+async def test_lines_view_shows_predicted_lines_of_the_level(tmp_path):
+    # invented two-parity session: Na-like 3s and 3p levels
+    from finefit.session import Session
+
+    s = Session.new(["3s", "3p"], Z=11)
+    s.set_parameter("3p: Eav", 16960.0, vary=True)
+    s.set_parameter("3p: zeta(3p)", 11.0, vary=True)
+    s.add_level(energy=0.0, J=0.5, parity="even", id="g")
+    s.add_level(energy=16956.17, J=0.5, parity="odd", id="d1")
+    s.add_level(energy=16973.37, J=1.5, parity="odd", id="d2")
+    s.set_parameter("3s: Eav", 0.0, vary=False)
+    p = tmp_path / "na.toml"
+    s.save(p)
+    app = make_app(p)
+    async with app.run_test(size=(140, 36)) as pilot:
+        await settle(app, pilot)
+        await select_level(app, pilot, "g")
+        await pilot.press("6")
+        for _ in range(200):
+            await app.workers.wait_for_complete()
+            await pilot.pause()
+            if app.lines_cache is not None:
+                break
+        await pilot.pause()
+        table = app.query_one("#lines-table", DataTable)
+        note = str(app.query_one("#lines-note").render())
+        assert table.row_count == 2, note  # the two resonance lines of the ground level
+        assert "predicted lines of g" in str(app.query_one("#lines-note").render())
