@@ -422,8 +422,9 @@ def cmd_lines(args) -> int:
         except ValueError:
             raise FinefitError(f"--radial {item!r} must look like 3s,3p=4.5", item) from None
         radial[(a, b)] = _float(value, f"--radial {pair}")
+    air_range = (0.0, 0.0) if args.vacuum else tuple(args.air_range)
     with _err_console().status("line strengths (Hartree-Fock for missing radial integrals)"):
-        lines, used = s.predict_lines(radial)
+        lines, used = s.predict_lines(radial, air_range=air_range)
     lines = [x for x in lines if x.gf >= args.min_gf][: args.limit]
     if args.json:
         _json({
@@ -609,6 +610,10 @@ def build_parser() -> argparse.ArgumentParser:
                     "Hartree-Fock)")
     sp.add_argument("--min-gf", type=float, default=0.0, help="omit weaker lines")
     sp.add_argument("--limit", type=int, default=50, help="at most this many lines")
+    sp.add_argument("--air-range", nargs=2, type=float, default=[2000.0, 20000.0],
+                    metavar=("FROM", "TO"), help="air wavelengths inside this range, angstrom "
+                    "(default 2000 20000, common practice)")
+    sp.add_argument("--vacuum", action="store_true", help="vacuum wavelengths only")
     sp.set_defaults(func=cmd_lines)
 
     sp = add("classify", "classify an observed line list by Ritz combinations of the levels")

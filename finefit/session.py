@@ -340,6 +340,7 @@ class Session:
         self,
         radial: dict[tuple[str, str], float] | None = None,
         min_strength: float = 0.0,
+        air_range: tuple[float, float] = (2000.0, 20000.0),
     ):
         """E1 lines between the session's even and odd levels at the current values.
 
@@ -375,7 +376,7 @@ class Session:
             return unc.get((level.parity, level.block, level.position))
 
         lines = predict_lines(dip, sols["even"], sols["odd"], given, min_strength,
-                              level_uncertainty)
+                              level_uncertainty, air_range)
         return lines, given
 
     def search_level(

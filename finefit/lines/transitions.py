@@ -198,12 +198,14 @@ def predict_lines(
     radial: dict[tuple[str, str], float],
     min_strength: float = 0.0,
     level_uncertainty=None,
+    air_range: tuple[float, float] = (2000.0, 20000.0),
 ) -> list[PredictedLine]:
     """Lines between two solutions, strongest first.
 
     ``level_uncertainty(level)`` gives each level's energy uncertainty (cm^-1); the two
     levels of a line belong to sets of opposite parity with their own parameters, so
-    their errors are combined in quadrature.
+    their errors are combined in quadrature. ``air_wavelength`` is given inside
+    ``air_range`` (angstrom; default 200 nm to 2 um, common practice), None outside.
 
     gf = (2/3) dE S and A = (4/3) alpha^3 dE^3 S / g_upper in atomic units (dE in hartree,
     S in (e a0)^2; Cowan 1981, ch. 14); constants from scipy.constants.
@@ -225,7 +227,7 @@ def predict_lines(
         de = sigma / hartree_cm
         g_up = 2 * upper.J + 1
         lam = 1e8 / sigma
-        air, in_air = reported_wavelength(lam, air_to=np.inf)
+        air, in_air = reported_wavelength(lam, air_from=air_range[0], air_to=air_range[1])
         du = dl = None
         if level_uncertainty is not None:
             ul, uu = level_uncertainty(lower), level_uncertainty(upper)

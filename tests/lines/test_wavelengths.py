@@ -43,3 +43,14 @@ def test_below_2000_is_an_error_and_reported_in_vacuum():
     lam, in_air = reported_wavelength(np.array([1215.67, 6564.61]))
     assert lam[0] == 1215.67 and not in_air[0]  # Lyman alpha stays in vacuum (common practice)
     assert lam[1] == pytest.approx(6562.80, abs=0.01) and in_air[1]
+
+
+def test_air_range_is_switchable():
+    from finefit.session import Session
+
+    s = Session.new(["3s", "3p"], Z=11)
+    s.set_parameter("3p: Eav", 16960.0)
+    lines, _ = s.predict_lines({("3s", "3p"): 4.3})
+    assert all(x.air_wavelength is not None for x in lines)  # 589 nm: in air by default
+    lines, _ = s.predict_lines({("3s", "3p"): 4.3}, air_range=(0.0, 0.0))
+    assert all(x.air_wavelength is None for x in lines)
