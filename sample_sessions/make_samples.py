@@ -88,9 +88,59 @@ def noble_gas_like() -> Session:
     return s
 
 
+def two_parity() -> tuple[Session, str]:
+    """Both parities of an invented carbon-like atom, a line list, and one level left out."""
+    from finefit.lines.wavelengths import vacuum_to_air
+
+    configs = ["2p 3s", "2p 3p"]
+    true = {
+        "2p 3s: Eav": 61000.0, "2p 3s: G1(2p,3s)": 4200.0, "2p 3s: zeta(2p)": 32.0,
+        "2p 3p: Eav": 70500.0, "2p 3p: F2(2p,3p)": 21000.0, "2p 3p: G0(2p,3p)": 2100.0,
+        "2p 3p: G2(2p,3p)": 8200.0, "2p 3p: zeta(2p)": 32.0, "2p 3p: zeta(3p)": 6.0,
+    }
+    s = Session.new(configs, Z=6, charge=0, name="Kc I (invented carbon-like atom)",
+                    title="Kestrel Ridge demo: 2p 3s - 2p 3p lines of an invented atom")
+    for name, v in true.items():
+        s.set_parameter(name, v)
+    rng = np.random.default_rng(5)
+    sols = s.solve()
+    lines, _ = s.predict_lines({("3s", "3p"): 2.8, ("2p", "3s"): 0.9})
+    kept = []
+    for parity, sol in sols.items():
+        for lev in sol.levels:
+            e = lev.energy + rng.normal(0, 0.02)
+            kept.append((parity, lev, e))
+    rows = ["# INVENTED line list (Kestrel Ridge demo): air wavelengths from invented levels,",
+            "# 0.002 A noise, relative intensities from predicted gf; plus 6 unrelated lines.",
+            "wavelength intensity uncertainty"]
+    for x in lines:
+        lam = x.air_wavelength or x.vacuum_wavelength
+        rows.append(f"{lam + rng.normal(0, 0.002):.4f} {1000 * x.gf:.0f} 0.003")
+    for _ in range(6):
+        rows.append(f"{rng.uniform(6000, 12000):.4f} {rng.integers(5, 50)} 0.003")
+    # the level left out for the search demo: the highest J = 2 level of 2p 3p
+    j2 = [k for k in kept if k[0] == "even" and k[1].J == 2.0]
+    leave = max(j2, key=lambda k: k[2])
+    for parity, lev, e in kept:
+        if (parity, lev.block, lev.position) == (leave[0], leave[1].block, leave[1].position):
+            continue
+        s.add_level(energy=round(e, 3), J=lev.J, parity=parity, label=lev.label,
+                    uncertainty=0.02)
+    for name, v in true.items():
+        start = v + 150 if "Eav" in name else v * (1 + 0.05 * rng.standard_normal())
+        s.set_parameter(name, round(start, 1), vary=True)
+    s.note = NOTE.format(noise=0.02, extra=f"The J = 2 level near {leave[2]:.0f} cm-1 is "
+                         "left out on purpose: find it with 'finefit search'.")
+    del vacuum_to_air
+    return s, "\n".join(rows) + "\n"
+
+
 def main() -> None:
     iron_group().save(HERE / "kestrel_iron_group.toml")
     noble_gas_like().save(HERE / "kestrel_neon_like.toml")
+    s, lines = two_parity()
+    s.save(HERE / "kestrel_two_parity.toml")
+    (HERE / "kestrel_two_parity_lines.txt").write_text(lines)
     for p in HERE.glob("*.bak"):
         p.unlink()
 

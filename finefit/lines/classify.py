@@ -158,9 +158,11 @@ def search_level(
     left = np.searchsorted(e_ev, grid - tolerance, side="left")
     right = np.searchsorted(e_ev, grid + tolerance, side="right")
     score = csum[right] - csum[left]
+    count = right - left
     cands: list[Candidate] = []
     taken = np.zeros(grid.size, dtype=bool)
-    for idx in np.argsort(-score, kind="stable"):
+    # rank by score; equal scores go to the position that explains more lines
+    for idx in np.lexsort((-count, -np.round(score, 9))):
         if len(cands) >= top or score[idx] <= 0:
             break
         if taken[idx]:
