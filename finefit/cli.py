@@ -485,6 +485,18 @@ def cmd_classify(args) -> int:
         tab.add_row(Text(lid + (" (disagrees)" if lid in c.disagreeing else "")), str(n),
                     f"{mean:+.2f}")
     con.print(tab)
+    if len(c.unclassified):
+        un = Table(title="Unclassified lines", title_justify="left")
+        for col in ("file line", "wavenumber (cm-1)", "intensity"):
+            un.add_column(col, justify="right")
+        for i in c.unclassified[: args.limit]:
+            inten = "" if ll.intensity is None or not np.isfinite(ll.intensity[i]) else \
+                f"{ll.intensity[i]:g}"
+            un.add_row(str(ll.source_lines[i]), f"{ll.wavenumber[i]:.4f}", inten)
+        con.print(un)
+    if c.disagreeing:
+        con.print(Text("levels whose lines disagree: " + ", ".join(c.disagreeing),
+                       style="yellow"))
     return EXIT_OK
 
 
@@ -620,6 +632,8 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("lines", help="line list (wavenumber or wavelength column)")
     sp.add_argument("--tolerance", type=float, default=0.05, help="cm-1 (default 0.05)")
     sp.add_argument("--medium", choices=("air", "vacuum"), help="medium of the wavelengths")
+    sp.add_argument("--limit", type=int, default=200, help="list at most this many "
+                    "unclassified lines")
     sp.set_defaults(func=cmd_classify)
 
     sp = add("search", "search a missing level among the unclassified lines")

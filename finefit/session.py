@@ -436,7 +436,8 @@ class Session:
         """The observed levels as known levels for line classification."""
         from finefit.lines.classify import KnownLevel
 
-        return [KnownLevel(lv.id, lv.energy, lv.J, lv.parity) for lv in self.levels]
+        return [KnownLevel(lv.id, lv.energy, lv.J, lv.parity, lv.uncertainty or 0.0)
+                for lv in self.levels]
 
     # ------------------------------------------------------------------ parameter sets
     def keep(self, result: FitResult, name: str, note: str = "") -> ParameterSet:

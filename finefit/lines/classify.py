@@ -22,6 +22,7 @@ class KnownLevel:
     energy: float
     J: float
     parity: str
+    uncertainty: float = 0.0  # cm^-1; enters the agreement test of its lines
 
 
 @dataclass(frozen=True, eq=False)
@@ -63,9 +64,10 @@ def classify_lines(
 ) -> Classification:
     """Classify observed wavenumbers (cm^-1) against the Ritz combinations of ``levels``.
 
-    A level 'disagrees' when the mean (obs - Ritz) of its lines, in units of the line
-    uncertainties (default: tolerance / 3, the tolerance read as a 3-sigma window,
-    common practice), exceeds ``disagreement`` / sqrt(number of its lines).
+    A level 'disagrees' when the mean (obs - Ritz) of its lines, each in units of its
+    combined uncertainty (the line's, default tolerance / 3 read as a 3-sigma window,
+    common practice, and the two levels' in quadrature), exceeds ``disagreement`` /
+    sqrt(number of its lines).
     """
     w = np.asarray(wavenumbers, dtype=float)
     tol = np.broadcast_to(np.asarray(tolerance, dtype=float), w.shape)
@@ -84,10 +86,12 @@ def classify_lines(
         found = []
         for k in range(left[i], right[i]):
             d = float(w[i] - sigma[k])
+            u = float(np.sqrt(unc[i] ** 2 + levels[lo[k]].uncertainty ** 2
+                              + levels[up[k]].uncertainty ** 2))
             found.append((levels[lo[k]].id, levels[up[k]].id, d))
             # an upper level sits too low when obs > Ritz: count d for the upper, -d lower
-            sums.setdefault(int(up[k]), []).append(d / unc[i])
-            sums.setdefault(int(lo[k]), []).append(-d / unc[i])
+            sums.setdefault(int(up[k]), []).append(d / u)
+            sums.setdefault(int(lo[k]), []).append(-d / u)
         matches.append(found)
     unclassified = np.flatnonzero(right == left)
     offsets, bad = {}, []
