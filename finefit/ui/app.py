@@ -766,6 +766,12 @@ class WorkspaceApp(App):
         self.push_screen(FormScreen("Keep the current fit as a parameter set",
                                     [("name", "name", "")]), done)
 
+    def action_adopt_fit(self) -> None:
+        if self._modal_open() or self.result is None:
+            return
+        result = self.result
+        self.apply_edit("adopted the fitted values", lambda s: s.apply(result))
+
     def action_load_set(self) -> None:
         if self._modal_open():
             return

@@ -36,6 +36,8 @@ COMMANDS: tuple[Command, ...] = (
             "backup)"),
     Command("keep_set", "k", "Keep fit as set", "Save the current fit as a named parameter set",
             show=False),
+    Command("adopt_fit", "y", "Adopt fitted values", "Make the fitted values the session's "
+            "starting values (undoable; saved with w)", show=False),
     Command("load_set", "o", "Start from a set", "Take a saved parameter set's values as "
             "the starting values", show=False),
     Command("filter", "slash", "Filter levels", "Show only levels matching configuration, J, "

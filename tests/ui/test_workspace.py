@@ -282,3 +282,18 @@ async def test_lines_view_shows_predicted_lines_of_the_level(tmp_path):
         note = str(app.query_one("#lines-note").render())
         assert table.row_count == 2, note  # the two resonance lines of the ground level
         assert "predicted lines of g" in str(app.query_one("#lines-note").render())
+
+
+async def test_adopting_the_fit_sets_starting_values_and_undoes(session_file):
+    app = make_app(session_file)
+    async with app.run_test(size=(120, 36)) as pilot:
+        await settle(app, pilot)
+        before = app.ws.session.to_toml()
+        fitted = dict(app.result.values)
+        await pilot.press("y")
+        await settle(app, pilot)
+        for name, v in fitted.items():
+            assert app.ws.session.parameters[name].value == pytest.approx(v)
+        await pilot.press("u")
+        await settle(app, pilot)
+        assert app.ws.session.to_toml() == before
