@@ -19,6 +19,7 @@ os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 os.environ.setdefault("OMP_NUM_THREADS", "1")
 
 import numpy as np
+from bench_engine import best_of
 
 from finefit import Model
 from finefit.fitting.fit import FitProblem
@@ -28,14 +29,6 @@ from finefit.fitting.synthetic import INVENTED_IRON_GROUP, synthetic_levels
 TRUE = INVENTED_IRON_GROUP
 
 
-def best_of(fn, repeat=7, number=20):
-    out = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        for _ in range(number):
-            fn()
-        out.append((time.perf_counter() - t0) / number)
-    return min(out)
 
 
 def main() -> int:
@@ -79,9 +72,9 @@ def main() -> int:
         prob._cache.clear()
         prob.evaluate(v, jacobian=True, commit=False)
 
-    t_bare = best_of(bare)
-    t_it = best_of(iteration_jac_only)
-    t_both = best_of(iteration)
+    t_bare = best_of(bare, 7, 20)
+    t_it = best_of(iteration_jac_only, 7, 20)
+    t_both = best_of(iteration, 7, 20)
     print(f"bare eigen-solves of the {len(blocks)} observed J blocks: {t_bare * 1e3:.3f} ms")
     print(f"one iteration (energies, eigenvector following, Jacobian): {t_it * 1e3:.3f} ms; "
           f"ratio {t_it / t_bare:.2f} (target <= 2)")
