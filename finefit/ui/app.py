@@ -17,6 +17,7 @@ from textual.app import App, ComposeResult, SystemCommand
 from textual.binding import Binding
 from textual.containers import Horizontal, VerticalScroll
 from textual.coordinate import Coordinate
+from textual.css.query import NoMatches
 from textual.screen import ModalScreen
 from textual.widgets import DataTable, Footer, Header, Static, TabbedContent, TabPane
 from textual.worker import get_current_worker
@@ -70,6 +71,7 @@ class WorkspaceApp(App):
         self.lines_cache: tuple[int, list] | None = None  # (generation, predicted lines)
         self.radial_cache: dict = {}
         self.lines_running = False
+        self.pictures_stale = True
 
     # ------------------------------------------------------------------ layout
     def compose(self) -> ComposeResult:
@@ -103,18 +105,25 @@ class WorkspaceApp(App):
         # on wide screens the configuration, parity and observed g get their own columns
         # (on narrow ones parity is the ° on J and g obs is in the detail pane)
         self.wide_table = self.size.width >= 140
-        columns = [("id", "id", None)]
+        # every column has a fixed width: measuring auto-width cells after each fit costs
+        # as much as drawing them
+        lvs = self.ws.session.levels
+        w_id = max([len(lv.id) for lv in lvs] + [4])
+        w_conf = max([len(c) for c in s.configurations] + [13])
+        label_names = [len(lv.label or "") for lv in lvs]
+        w_label = min(max(label_names + [len(c) + 2 for c in s.configurations] + [8]), 40)
+        columns = [("id", "id", w_id)]
         if self.wide_table:
-            columns.append(("conf", "configuration", None))
-        columns += [("label", "label", None), ("J", "J", 5)]
+            columns.append(("conf", "configuration", w_conf))
+        columns += [("label", "label", w_label), ("J", "J", 5)]
         if self.wide_table:
             columns.append(("par", "parity", 6))
         columns += [("eobs", "E obs", 11), ("ecalc", "E calc", 11), ("oc", "O-C", 12),
-                    ("pur", "%LS", 4), ("lead", "leading (best scheme)", None),
+                    ("pur", "%LS", 4), ("lead", "leading (best scheme)", w_label + 10),
                     ("gc", "g calc", 7)]
         if self.wide_table:
             columns.append(("go", "g obs", 6))
-        columns.append(("flags", "", None))
+        columns.append(("flags", "", 14))
         for key, label, width in columns:
             lt.add_column(label, key=key, width=width)
         ln = self.query_one("#lines-table", DataTable)
@@ -191,8 +200,9 @@ class WorkspaceApp(App):
         self.update_status()
 
     def _fit_done(self, generation: int, result: FitResult) -> None:
-        if generation != self.ws.generation:
-            return  # an edit came after this fit started: a newer fit is on its way
+        if generation != self.ws.generation or not self.is_running:
+            return  # an edit came after this fit started (a newer fit is on its way), or
+            # the app is closing
         self.fit_running = False
         if self.result is not None:
             self.previous_sigma = self.result.sigma
@@ -365,7 +375,13 @@ class WorkspaceApp(App):
         if table.row_count:
             table.move_cursor(row=min(keep, table.row_count - 1))
 
-    def refresh_pictures(self) -> None:
+    def refresh_pictures(self, force: bool = False) -> None:
+        """Redraw the pictures; those not on screen are only marked stale (drawing the
+        correlation table and plots after every fit would slow the refit down)."""
+        if not force and self._tab() not in ("corr", "resid", "diagram"):
+            self.pictures_stale = True
+            return
+        self.pictures_stale = False
         r = self.result
         corr = self.query_one("#corr-table", DataTable)
         corr.clear(columns=True)
@@ -451,7 +467,10 @@ class WorkspaceApp(App):
     # ------------------------------------------------------------------ events
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         if event.data_table.id == "levels-table":
-            self.refresh_detail()
+            try:
+                self.refresh_detail()
+            except NoMatches:  # the app is closing: its widgets are gone
+                pass
 
     # ------------------------------------------------------------------ lines view
     def refresh_lines(self) -> None:
@@ -506,6 +525,8 @@ class WorkspaceApp(App):
 
     def _lines_done(self, generation: int, lines, used) -> None:
         self.lines_running = False
+        if not self.is_running:
+            return
         self.radial_cache.update(used)
         self.lines_cache = (generation, lines) if generation == self.ws.generation else None
         if self._tab() == "lines":
@@ -830,10 +851,16 @@ class WorkspaceApp(App):
         self._apply_detail_visibility()
         self.refresh_detail()
 
+    def on_tabbed_content_tab_activated(self, event: TabbedContent.TabActivated) -> None:
+        if self.pictures_stale and self._tab() in ("corr", "resid", "diagram"):
+            self.refresh_pictures(force=True)
+
     def action_show_tab(self, name: str) -> None:
         if self._modal_open():
             return
         self.query_one(TabbedContent).active = name
+        if self.pictures_stale and name in ("corr", "resid", "diagram"):
+            self.refresh_pictures(force=True)
         if name == "params":
             self.query_one("#params-table").focus()
         elif name == "levels":
@@ -849,7 +876,7 @@ class WorkspaceApp(App):
             return
         n = len(pictures.diagram_configurations(self.result))
         self.diagram_choice = (self.diagram_choice + 1) % (n + 1)
-        self.refresh_pictures()
+        self.refresh_pictures(force=True)
 
     def action_help(self) -> None:
         if not isinstance(self.screen, HelpScreen):
