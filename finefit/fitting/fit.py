@@ -20,11 +20,12 @@ import lmfit
 import numpy as np
 
 from finefit.errors import FinefitError
-from finefit.fitting.assignment import BlockAttachment, attach_block, match_label
+from finefit.fitting.assignment import BlockAttachment, attach_block
 from finefit.fitting.results import FitResult, LevelRow, PredictedLevel
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
 from finefit.model.coupling import coupling_data
 from finefit.model.hamiltonian import Model, _solve_block
+from finefit.model.label_match import leading_row, resolve_label
 from finefit.notation.jvalues import format_j
 
 
@@ -185,9 +186,8 @@ class FitProblem:
             b = next(b for b in model.blocks if b.J2 == j2)
             x = self._model_x(self.x_start, parity)
             w, V, _ = _solve_block(b, x, False)
-            cd = coupling_data(model)[j2]
             idx, warns = attach_block(
-                lvs, w, V, cd.ls_labels, b.state_config, model.configurations,
+                lvs, w, V, coupling_data(model), b.state_config, model.configurations,
                 self.options.assignment,
             )
             self.warnings.extend(warns)
@@ -356,8 +356,7 @@ class FitProblem:
                 if isinstance(lv.state, int) or not (lv.label or lv.state):
                     lv.state = int(idx[pos]) + 1  # keep where the fit took it
                 trial.append(lv)
-            cd = coupling_data(model)[j2]
-            new, _ = attach_block(trial, w, V, cd.ls_labels, b.state_config,
+            new, _ = attach_block(trial, w, V, coupling_data(model), b.state_config,
                                   model.configurations, self.options.assignment)
             changed = [att.level_ids[k] for k in np.flatnonzero(new != idx)]
             if changed:
@@ -517,6 +516,7 @@ class FitProblem:
         for parity, model in self.models.items():
             sol = model.solve(self._model_x(x, parity))
             sols[parity] = sol
+            coupling = coupling_data(model)
             by_pos = {(lev.block, lev.position): lev for lev in sol.levels}
             attached: dict[tuple[int, int], str] = {}
             for (p, j2), att in self.attachments.items():
@@ -538,9 +538,13 @@ class FitProblem:
                 if key in attached:
                     lid = attached[key]
                     obs = lv_by_id[lid]
-                    mismatch = bool(obs.label) and (
-                        match_label(obs.label, [lev.label], obs.J) is None
-                    )
+                    mismatch = False
+                    if obs.label:
+                        target = resolve_label(coupling, obs.label, obs.J)
+                        vec = sol.eigenvector(lev)
+                        mismatch = leading_row(coupling[lev.block], target.scheme, vec) != (
+                            target.row
+                        )
                     rows.append(
                         LevelRow(
                             id=lid, J=lev.J, parity=parity, energy_obs=obs.energy,

@@ -10,7 +10,7 @@ exactly as for LS. Compositions in a scheme are the squared overlaps with its ba
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -36,10 +36,14 @@ from finefit.model.basis import (
 from finefit.model.solution import lande_g_ls
 from finefit.notation.jvalues import format_angular
 from finefit.notation.labels import SubshellPart, format_jj, format_ls
-from finefit.notation.terms import term_symbol
+from finefit.notation.terms import seniority_copies, term_symbol
 
 
-def ls_label(basis: Basis, state: LSState) -> str:
+def ls_label(basis: Basis, state: LSState, explicit: bool = False) -> str:
+    """The LS label of a basis state, repeated terms with their compilation index.
+
+    ``explicit`` adds finefit's explicit quantum numbers (``3d7 2D2{v3}``).
+    """
     info = basis.configs[state.config]
     parts = []
     k = 0
@@ -47,11 +51,13 @@ def ls_label(basis: Basis, state: LSState) -> str:
         if s.is_open and s.name in basis.shell_names:
             t = state.subshell_terms[k]
             k += 1
-            parts.append(SubshellPart(s.name, s.occupancy, s.l, t.L, t.S2, t.seniority, t.index))
+            parts.append(
+                SubshellPart(s.name, s.occupancy, s.l, t.L, t.S2, t.seniority, t.index, t.w, t.u)
+            )
         else:
             parts.append(SubshellPart(s.name, s.occupancy, s.l))
     odd = info.configuration.parity == "odd"
-    return format_ls(parts, list(state.intermediates), state.L, state.S2, odd)
+    return format_ls(parts, list(state.intermediates), state.L, state.S2, odd, explicit)
 
 
 class _Casimirs:
@@ -127,6 +133,9 @@ class BlockCoupling:
     jk_U: np.ndarray
     has_jk: bool
     state_config: np.ndarray
+    ls_explicit: list[str] = field(default_factory=list)  # with {v..,W..,U..} qualifiers
+    j1j_labels: list[str] = field(default_factory=list)  # core in LS with J_c, outer j
+    j1j_U: np.ndarray | None = None
 
     def scheme(self, name: str, v: np.ndarray) -> tuple[list[str], np.ndarray]:
         key = name.lower()
@@ -136,9 +145,11 @@ class BlockCoupling:
             return self.jj_labels, self.jj_U.T @ v
         if key in ("jk", "pair"):
             return self.jk_labels, self.jk_U.T @ v
+        if key == "j1j" and self.j1j_U is not None:
+            return self.j1j_labels, self.j1j_U.T @ v
         from finefit.errors import FinefitError
 
-        raise FinefitError(f"unknown coupling scheme {name!r}: use LS, jj or JK", name)
+        raise FinefitError(f"unknown coupling scheme {name!r}: use LS, jj, JK or J1j", name)
 
     def scheme_configs(self, name: str, block) -> np.ndarray:
         # all three bases are configuration-pure and keep the configuration order of rows
@@ -156,12 +167,15 @@ def coupling_data(model) -> dict[int, BlockCoupling]:
         jb = basis.j_blocks[b.J2]
         states = [basis.ls_states[i] for i in b.state_index]
         ls = [ls_label(basis, st) for st in states]
+        ls_explicit = [ls_label(basis, st, explicit=True) for st in states]
         g = np.array([lande_g_ls(st.L, st.S2, b.J2) for st in states])
         n = b.size
         jj_U = np.zeros((n, n))
         jk_U = np.eye(n)
         jj_labels = [""] * n
         jk_labels = list(ls)
+        j1j_U = np.eye(n)
+        j1j_labels = list(ls)
         has_jk = False
         for x, info in enumerate(basis.configs):
             rows = np.flatnonzero(b.state_config == x)
@@ -173,15 +187,17 @@ def coupling_data(model) -> dict[int, BlockCoupling]:
             jj_U[np.ix_(rows, rows)] = R
             for r, lab in zip(rows, labels, strict=True):
                 jj_labels[r] = lab
-            res = _jk_basis(basis, info, sub, tie, [states[r] for r in rows], b.J2)
-            if res is not None:
-                has_jk = True
-                R, labels = res
-                jk_U[np.ix_(rows, rows)] = R
-                for r, lab in zip(rows, labels, strict=True):
-                    jk_labels[r] = lab
+            for mode, U_, labs_ in (("JK", jk_U, jk_labels), ("J1j", j1j_U, j1j_labels)):
+                res = _jk_basis(basis, info, sub, tie, [states[r] for r in rows], b.J2, mode)
+                if res is not None:
+                    has_jk = True
+                    R, labels = res
+                    U_[np.ix_(rows, rows)] = R
+                    for r, lab in zip(rows, labels, strict=True):
+                        labs_[r] = lab
         out[b.J2] = BlockCoupling(
-            b.J2, ls, g, jj_labels, jj_U, jk_labels, jk_U, has_jk, b.state_config
+            b.J2, ls, g, jj_labels, jj_U, jk_labels, jk_U, has_jk, b.state_config,
+            ls_explicit, j1j_labels, j1j_U,
         )
     model._coupling_cache = out
     return out
@@ -258,7 +274,12 @@ def _jj_basis(basis: Basis, info, cas: _Casimirs, tie: np.ndarray, J2: int):
     return R, labels
 
 
-def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2: int):
+def _jk_basis(
+    basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2: int, mode: str = "JK"
+):
+    """Core (all open subshells but the last, one electron) in LS with J_c; then pair coupling
+    K = J_c + l, J = K + s (``mode="JK"``, Racah 1942), or J1j coupling J = J_c + j of the
+    outer electron (``mode="J1j"``)."""
     shells = list(info.open_shells)
     if len(shells) < 2 or info.occupancy[shells[-1]] != 1:
         return None
@@ -288,8 +309,15 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
     jc_p = lplus_terms(so, core) + splus_terms(so, core)
     ops.append(cas.vector_casimir(jc_z, jc_p))
     keys.append(("Jc",))
-    ops.append(cas.vector_casimir(jc_z + lz_terms(so, [outer]), jc_p + lplus_terms(so, [outer])))
-    keys.append(("K",))
+    outer_l = basis.shells[outer][1]
+    if mode == "JK":
+        ops.append(
+            cas.vector_casimir(jc_z + lz_terms(so, [outer]), jc_p + lplus_terms(so, [outer]))
+        )
+        keys.append(("K",))
+    elif outer_l > 0:
+        ops.append(cas.one(j_subshell_operators(so, outer, 2 * outer_l + 1)[0]))
+        keys.append(("j+",))
     n = cas.Q.shape[1]
     R, values, index = _sequential(ops, n, tie)
     val = dict(zip(keys, values, strict=True))
@@ -313,7 +341,11 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
                     Ls = _casimir_value(val[("L", pos)][i])
                     S2s = _casimir_value2(val[("S", pos)][i])
                     v = _seniority(val[("v", pos)][i], l, n_el) if l >= 2 else _p_seniority(Ls, S2s)
-                    parts.append(SubshellPart(s.name, n_el, l, Ls, S2s, v, 0))
+                    copies = seniority_copies(l, n_el, Ls, S2s)
+                    # the compilations' index; copies of equal seniority (f shells) keep the
+                    # running letter added below
+                    nk = copies.index(v) + 1 if len(copies) > 1 else 0
+                    parts.append(SubshellPart(s.name, n_el, l, Ls, S2s, v, nk))
                 pos += 1
             else:
                 parts.append(SubshellPart(s.name, s.occupancy, s.l))
@@ -333,16 +365,24 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
         head, _, final = text.rpartition(" ")
         # core term with its J in parentheses, then the outer electron and [K]
         jc2 = _two_j(val[("Jc",)][i])
-        k2 = _two_j(val[("K",)][i])
         core_term = final if len(core) == 1 else term_symbol(cL, cS2, core_odd)
         head_text = head
         odd = info.configuration.parity == "odd"
-        # a seniority digit on the core term would run into J_c: separate them by a comma
-        sep = "" if re.fullmatch(r"\d+[A-Z\[\]=L0-9]*?[A-Z]°?", core_term) else ","
-        lab = (
-            f"{head_text}({core_term}{sep}{format_angular(jc2)}){outer_sub.name} "
-            f"2[{format_angular(k2)}]" + ("°" if odd else "")
-        )
+        # an index digit on the core term would run into J_c: separate them by a comma
+        sep = "" if re.fullmatch(r"\d+[A-Z]°?", core_term) else ","
+        if mode == "JK":
+            k2 = _two_j(val[("K",)][i])
+            lab = (
+                f"{head_text}({core_term}{sep}{format_angular(jc2)}){outer_sub.name} "
+                f"2[{format_angular(k2)}]" + ("°" if odd else "")
+            )
+        else:
+            ol = outer_sub.l
+            j2 = 1 if ol == 0 else (2 * ol + 1 if round(val[("j+",)][i]) == 1 else 2 * ol - 1)
+            lab = (
+                f"{head_text}({core_term}{sep}{format_angular(jc2)}){outer_sub.name}"
+                f"({format_angular(j2)})"
+            )
         if index[i]:
             lab += "abcdefghijklmnopqrstuvwxyz"[index[i] - 1]
         labels.append(lab)
