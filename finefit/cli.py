@@ -7,14 +7,13 @@ import json
 import os
 import sys
 from pathlib import Path
-
-import numpy as np
-from rich.console import Console
-from rich.table import Table
-from rich.text import Text
+from typing import TYPE_CHECKING
 
 from finefit.errors import FinefitError
 from finefit.notation.jvalues import format_j
+
+if TYPE_CHECKING:
+    from rich.console import Console
 
 EXIT_OK, EXIT_NOT_CONVERGED, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
 
@@ -24,11 +23,28 @@ CAUTION = (
 )
 
 
+# numpy, rich and the engine are imported when a command runs, not for `--help`
+def Table(*args, **kwargs):  # noqa: N802 - stands in for rich.table.Table
+    from rich.table import Table as _Table
+
+    return _Table(*args, **kwargs)
+
+
+def Text(*args, **kwargs):  # noqa: N802 - stands in for rich.text.Text
+    from rich.text import Text as _Text
+
+    return _Text(*args, **kwargs)
+
+
 def _console(args) -> Console:
+    from rich.console import Console
+
     return Console(no_color=bool(os.environ.get("NO_COLOR")) or getattr(args, "json", False))
 
 
 def _err_console() -> Console:
+    from rich.console import Console
+
     return Console(stderr=True, no_color=bool(os.environ.get("NO_COLOR")))
 
 
@@ -456,6 +472,8 @@ def cmd_lines(args) -> int:
 
 
 def cmd_classify(args) -> int:
+    import numpy as np
+
     from finefit.lines.classify import classify_lines
     from finefit.storage.line_tables import read_lines
 

@@ -16,7 +16,6 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
-import lmfit
 import numpy as np
 
 from finefit.errors import FinefitError
@@ -269,6 +268,8 @@ class FitProblem:
             return self.report(message="nothing to vary: values as given")
         if not self.included:
             raise FinefitError("no observed level is included in the fit", "levels")
+        import lmfit  # imported here: loading it costs about a second (scipy.stats, plotting)
+
         params = lmfit.Parameters()
         for j, var in enumerate(self.variables):
             params.add(f"v{j}", value=float(self.v_start[j]), min=var.min, max=var.max)
