@@ -764,7 +764,10 @@ def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
-        return int(args.func(args))
+        from finefit.threads import engine_threads
+
+        with engine_threads():
+            return int(args.func(args))
     except FinefitError as exc:
         print(f"finefit: error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
