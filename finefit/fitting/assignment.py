@@ -15,12 +15,18 @@ import re
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.optimize import linear_sum_assignment
 
 from finefit.errors import FinefitError
 from finefit.fitting.settings import ObservedLevel
 from finefit.notation.jvalues import format_j
 from finefit.notation.labels import normalise_label
+
+
+def linear_sum_assignment(cost: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """scipy's assignment solver, imported on first use (scipy.optimize loads slowly)."""
+    from scipy.optimize import linear_sum_assignment as solve
+
+    return solve(cost)
 
 
 def _strip_qualifiers(label: str) -> str:

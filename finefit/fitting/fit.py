@@ -23,8 +23,9 @@ from finefit.fitting.assignment import BlockAttachment, attach_block, match_labe
 from finefit.fitting.results import FitResult, LevelRow, PredictedLevel
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
 from finefit.model.coupling import coupling_data
-from finefit.model.hamiltonian import Model, _solve_block
+from finefit.model.hamiltonian import Model
 from finefit.notation.jvalues import format_j
+from finefit.threads import with_engine_threads
 
 
 class FitCancelled(Exception):
@@ -183,7 +184,8 @@ class FitProblem:
             model = self.models[parity]
             b = next(b for b in model.blocks if b.J2 == j2)
             x = self._model_x(self.x_start, parity)
-            w, V, _ = _solve_block(b, x, False)
+            eig = model.eigen_block(b, x)
+            w, V = eig.energies, eig.vectors
             cd = coupling_data(model)[j2]
             idx, warns = attach_block(
                 lvs, w, V, cd.ls_labels, b.state_config, model.configurations,
@@ -236,28 +238,27 @@ class FitProblem:
             parity = bkey[0]
             b, rows, sel, grid = self._plan[bkey]
             hit = self._cache.get(bkey)
-            if hit is not None and hit[0] == key and hit[4] is att.reference:
-                w, V, idx = hit[1], hit[2], hit[3]
+            if hit is not None and hit[0] == key and hit[3] is att.reference:
+                eig, idx = hit[1], hit[2]
             else:
-                w, V, _ = _solve_block(b, self._model_x(x, parity), False)
-                idx = att.follow(V) if self.options.follow_eigenvectors else att.eigen_index
-                self._cache[bkey] = (key, w, V, idx, att.reference)
+                eig = self.models[parity].eigen_block(b, self._model_x(x, parity))
+                idx = (att.follow(eig.vectors) if self.options.follow_eigenvectors
+                       else att.eigen_index)
+                self._cache[bkey] = (key, eig, idx, att.reference)
             if commit:
-                att.commit(idx, V)
+                att.commit(idx, eig.vectors)
             if not rows.size:
                 continue
             states = idx[sel]
-            e[rows] = w[states]
+            e[rows] = eig.energies[states]
             if jacobian and b.param_index.size:
-                n = b.size
-                Vs = V[:, states]
-                VV = (Vs[:, None, :] * Vs[None, :, :]).reshape(n * n, states.size)
-                J[grid] = (b.C_flat @ VV).T
+                J[grid] = eig.derivatives(states)
         if not jacobian:
             return e, None
         return e, J @ self.chain
 
     # ------------------------------------------------------------------ fit
+    @with_engine_threads
     def fit(
         self,
         should_stop: Callable[[], bool] | None = None,
@@ -349,7 +350,8 @@ class FitProblem:
         for (parity, j2), att in self.attachments.items():
             model = self.models[parity]
             b = next(bb for bb in model.blocks if bb.J2 == j2)
-            w, V, _ = _solve_block(b, self._model_x(x, parity), False)
+            eig = model.eigen_block(b, self._model_x(x, parity))
+            w, V = eig.energies, eig.vectors
             idx = att.follow(V)
             trial = []
             for pos, lid in enumerate(att.level_ids):

@@ -421,7 +421,8 @@ class Basis:
                         new_groups.append(g[start:i])
                         start = i
             groups = new_groups
-        qn = {(k, p): np.einsum("ij,jk,ki->i", R.T, op, R) for k, p, op in ops}
+        # diagonal of R^T op R as one matrix product (a three-operand einsum is ~10x slower)
+        qn = {(k, p): np.sum(R * (op @ R), axis=0) for k, p, op in ops}
         index_of = np.zeros(n, dtype=int)
         for g in groups:
             if g.size == 1:
