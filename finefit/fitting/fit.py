@@ -205,9 +205,11 @@ class FitProblem:
             b = next(bb for bb in self.models[parity].blocks if bb.J2 == j2)
             sel = np.array([p for p, lid in enumerate(att.level_ids) if lid in row_of], dtype=int)
             rows = np.array([row_of[att.level_ids[p]] for p in sel], dtype=int)
-            cols = self.offset[parity] + b.param_index
+            # only parameters that enter a variable need derivatives
+            used = np.flatnonzero(self.chain[self.offset[parity] + b.param_index].any(axis=1))
+            cols = self.offset[parity] + b.param_index[used]
             grid = (rows[:, None], cols[None, :])
-            self._plan[key] = (b, rows, sel, grid)
+            self._plan[key] = (b, rows, sel, grid, used)
         self.obs = np.array([lv.energy for lv in self.included])
         u = np.array(
             [lv.uncertainty if lv.uncertainty else self.options.default_uncertainty
@@ -236,7 +238,7 @@ class FitProblem:
         J = np.zeros((len(self.included), len(self.names))) if jacobian else None
         for bkey, att in self.attachments.items():
             parity = bkey[0]
-            b, rows, sel, grid = self._plan[bkey]
+            b, rows, sel, grid, used = self._plan[bkey]
             hit = self._cache.get(bkey)
             if hit is not None and hit[0] == key and hit[3] is att.reference:
                 eig, idx = hit[1], hit[2]
@@ -251,8 +253,8 @@ class FitProblem:
                 continue
             states = idx[sel]
             e[rows] = eig.energies[states]
-            if jacobian and b.param_index.size:
-                J[grid] = eig.derivatives(states)
+            if jacobian and used.size:
+                J[grid] = eig.derivatives(states, used)
         if not jacobian:
             return e, None
         return e, J @ self.chain

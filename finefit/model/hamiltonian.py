@@ -47,6 +47,24 @@ class OperatorBlock:
 
     def __post_init__(self) -> None:
         self.C_flat = self.C.reshape(self.C.shape[0], -1)
+        self._packed: dict = {}
+
+    def packed(self, params: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Upper triangles of the (symmetric) C_p of ``params`` (positions in param_index).
+
+        Returns (P, rows, cols): P[k] holds C_p[rows, cols] with off-diagonal elements
+        doubled, so that v^T C_p v = P[k] @ (v[rows] * v[cols]) with half the products.
+        Cached per parameter selection.
+        """
+        key = None if params is None else tuple(int(i) for i in params)
+        hit = self._packed.get(key)
+        if hit is None:
+            rows, cols = np.triu_indices(self.size)
+            C = self.C if params is None else self.C[np.asarray(params, dtype=np.int64)]
+            P = np.ascontiguousarray(C[:, rows, cols] * np.where(rows == cols, 1.0, 2.0))
+            hit = (P, rows, cols)
+            self._packed[key] = hit
+        return hit
 
     @property
     def J(self) -> float:
@@ -376,18 +394,21 @@ class BlockEigen:
     energies: np.ndarray
     vectors: np.ndarray
 
-    def derivatives(self, states: np.ndarray | None = None) -> np.ndarray:
+    def derivatives(
+        self, states: np.ndarray | None = None, params: np.ndarray | None = None
+    ) -> np.ndarray:
         """dE_i/dx_p = v_i^T C_p v_i (Hellmann-Feynman) of the given eigenstates (default all).
 
-        Rows follow ``states``, columns the block's ``param_index``.
+        Rows follow ``states``; columns follow ``params``, positions in the block's
+        ``param_index`` (default all of them).
         """
         b = self.block
-        n = b.size
         V = self.vectors if states is None else self.vectors[:, states]
-        if n <= 64:
-            # one product with the outer products of the vectors (small blocks: fewer
-            # numpy calls matter more than flops)
-            VV = (V[:, None, :] * V[None, :, :]).reshape(n * n, V.shape[1])
-            return (b.C_flat @ VV).T
-        CV = b.C @ V  # (params, n, states)
+        if b.size <= 64:
+            # one product with the pair products of the vector components over the upper
+            # triangle (small blocks: fewer numpy calls matter more than flops)
+            P, rows, cols = b.packed(params)
+            return (P @ (V[rows] * V[cols])).T
+        C = b.C if params is None else b.C[params]
+        CV = C @ V  # (params, n, states)
         return np.einsum("jk,pjk->kp", V, CV)
