@@ -140,12 +140,12 @@ def _print_result(con: Console, s, r, args) -> None:
 
     con.print(tables.summary_text(r))
     con.print(tables.parameter_table(r, s.parameters, width=con.width))
-    con.print(tables.level_table(r, width=con.width))
+    tables.print_table(con, tables.level_table(r, width=con.width))
     corr = tables.correlation_table(r)
     if corr is not None:
         con.print(corr)
     if getattr(args, "predictions", False):
-        con.print(tables.prediction_table(r))
+        tables.print_table(con, tables.prediction_table(r))
     for w in r.warnings:
         con.print(Text("warning: " + w, style="yellow"))
     con.print(Text(CAUTION, style="dim"))
@@ -217,8 +217,10 @@ def cmd_levels(args) -> int:
                     f"{100 * lev.purity:.0f}%",
                     Text("  ".join(f"{100 * c.fraction:.0f}% {c.label}" for c in comps)),
                     f"{lev.g:.4f}")
+    from finefit.reports.tables import print_table
+
     con = _console(args)
-    con.print(tab)
+    print_table(con, tab)
     con.print(Text(CAUTION, style="dim"))
     return EXIT_OK
 

@@ -68,8 +68,12 @@ class _Casimirs:
         """Q^T X^2 Q for X with X_z and X_+ given as one-body terms: X^2 = Xz^2 + Xz + X- X+."""
         z = one_body(self.block, self.block, z_terms)
         p = one_body(self.block, self.up, plus_terms)
-        ZQ = z @ self.Q
         PQ = p @ self.Q
+        d = z.diagonal()
+        if z.nnz == np.count_nonzero(d):
+            # X_z diagonal on determinants (L_z, S_z): Q^T (Xz^2 + Xz) Q in one product
+            return self.Q.T @ ((d * (d + 1.0))[:, None] * self.Q) + PQ.T @ PQ
+        ZQ = z @ self.Q
         return ZQ.T @ ZQ + self.Q.T @ ZQ + PQ.T @ PQ
 
     def one(self, terms: OneBody) -> np.ndarray:
