@@ -7,14 +7,13 @@ import json
 import os
 import sys
 from pathlib import Path
-
-import numpy as np
-from rich.console import Console
-from rich.table import Table
-from rich.text import Text
+from typing import TYPE_CHECKING
 
 from finefit.errors import FinefitError
 from finefit.notation.jvalues import format_j
+
+if TYPE_CHECKING:
+    from rich.console import Console
 
 EXIT_OK, EXIT_NOT_CONVERGED, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
 
@@ -24,11 +23,28 @@ CAUTION = (
 )
 
 
+# numpy, rich and the engine are imported when a command runs, not for `--help`
+def Table(*args, **kwargs):  # noqa: N802 - stands in for rich.table.Table
+    from rich.table import Table as _Table
+
+    return _Table(*args, **kwargs)
+
+
+def Text(*args, **kwargs):  # noqa: N802 - stands in for rich.text.Text
+    from rich.text import Text as _Text
+
+    return _Text(*args, **kwargs)
+
+
 def _console(args) -> Console:
+    from rich.console import Console
+
     return Console(no_color=bool(os.environ.get("NO_COLOR")) or getattr(args, "json", False))
 
 
 def _err_console() -> Console:
+    from rich.console import Console
+
     return Console(stderr=True, no_color=bool(os.environ.get("NO_COLOR")))
 
 
@@ -124,12 +140,12 @@ def _print_result(con: Console, s, r, args) -> None:
 
     con.print(tables.summary_text(r))
     con.print(tables.parameter_table(r, s.parameters, width=con.width))
-    con.print(tables.level_table(r, width=con.width))
+    tables.print_table(con, tables.level_table(r, width=con.width))
     corr = tables.correlation_table(r)
     if corr is not None:
         con.print(corr)
     if getattr(args, "predictions", False):
-        con.print(tables.prediction_table(r))
+        tables.print_table(con, tables.prediction_table(r))
     for w in r.warnings:
         con.print(Text("warning: " + w, style="yellow"))
     con.print(Text(CAUTION, style="dim"))
@@ -201,8 +217,10 @@ def cmd_levels(args) -> int:
                     f"{100 * lev.purity:.0f}%",
                     Text("  ".join(f"{100 * c.fraction:.0f}% {c.label}" for c in comps)),
                     f"{lev.g:.4f}")
+    from finefit.reports.tables import print_table
+
     con = _console(args)
-    con.print(tab)
+    print_table(con, tab)
     con.print(Text(CAUTION, style="dim"))
     return EXIT_OK
 
@@ -494,6 +512,8 @@ def cmd_lines(args) -> int:
 
 
 def cmd_classify(args) -> int:
+    import numpy as np
+
     from finefit.lines.classify import classify_lines
     from finefit.storage.line_tables import read_lines
 
@@ -791,7 +811,10 @@ def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
-        return int(args.func(args))
+        from finefit.threads import engine_threads
+
+        with engine_threads():
+            return int(args.func(args))
     except FinefitError as exc:
         print(f"finefit: error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT

@@ -34,6 +34,7 @@ from finefit.storage.session_file import (
     dump_session,
     parse_session,
 )
+from finefit.threads import with_engine_threads
 
 # Kinds varied by default in a new session; CI integrals and effective corrections are
 # commonly held fixed at scaled ab initio values until the data can carry them.
@@ -58,6 +59,7 @@ def group_by_parity(configurations: list[str]) -> dict[str, tuple[str, ...]]:
 class Session:
     """Observed levels of one ion and the parametric model fitted to them."""
 
+    @with_engine_threads
     def __init__(self, data: SessionData, path: str | Path | None = None) -> None:
         self.path = Path(path) if path else None
         self.ion = data.ion
@@ -319,9 +321,11 @@ class Session:
         return self.update_level(level_id, state=state)
 
     # ------------------------------------------------------------------ fitting
+    @with_engine_threads
     def problem(self) -> FitProblem:
         return FitProblem(self.models, self.parameters, self.levels, self.options)
 
+    @with_engine_threads
     def fit(
         self,
         should_stop: Callable[[], bool] | None = None,
@@ -332,6 +336,7 @@ class Session:
         self.last_result = result
         return result
 
+    @with_engine_threads
     def report(self) -> FitResult:
         """Observed vs calculated at the current values, without fitting."""
         result = self.problem().report()
@@ -344,6 +349,7 @@ class Session:
             if name in self.parameters:
                 self.parameters[name].value = v
 
+    @with_engine_threads
     def solve(self, parity: str | None = None):
         """Computed levels at the current values (one Solution per parity)."""
         out = {}
@@ -373,6 +379,7 @@ class Session:
                 self.parameters[name].value = res.start[name]
         return res
 
+    @with_engine_threads
     def predict_lines(
         self,
         radial: dict[tuple[str, str], float] | None = None,

@@ -14,12 +14,19 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.optimize import linear_sum_assignment
 
 from finefit.errors import FinefitError
 from finefit.fitting.settings import ObservedLevel
 from finefit.model.label_match import resolve_label
 from finefit.notation.jvalues import format_j
+
+
+def linear_sum_assignment(cost: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """scipy's assignment solver, imported on first use (scipy.optimize loads slowly)."""
+    from scipy.optimize import linear_sum_assignment as solve
+
+    return solve(cost)
+
 
 
 def label_overlaps(coupling: dict, J2: int, label: str, J: float, vectors: np.ndarray):

@@ -11,6 +11,9 @@ operators and Clebsch-Gordan coefficients. Everything is exact up to rounding.
 
 from __future__ import annotations
 
+import itertools
+import os
+from collections import Counter
 from dataclasses import dataclass, field
 from math import comb
 
@@ -42,6 +45,81 @@ from finefit.notation.terms import subshell_term_counts
 # Running indices of repeated terms of equal seniority are ordered by the energy of
 # this reference electrostatic operator of the subshell (weights of F^k, k = 2, 4, 6).
 TIE_BREAK_WEIGHTS = {2: 1.0, 4: 0.25, 6: 1.0 / 9.0, 8: 1.0 / 16.0, 10: 1.0 / 25.0, 12: 1.0 / 36.0}
+
+
+# Default ceiling of the size guard (GiB); FINEFIT_MEMORY_LIMIT_GB overrides it.
+DEFAULT_MEMORY_LIMIT_GB = 4.0
+
+
+@dataclass(frozen=True)
+class SizeEstimate:
+    """What building a configuration set will take, known before anything is built.
+
+    The memory counts the dense highest-weight problem of the largest (M_L, M_S)
+    block of one configuration (the matrix, its eigenvectors and LAPACK's
+    divide-and-conquer workspace of about 2 n^2 more, dsyevd documentation: 4 n^2
+    doubles) plus, per J, the exact-J vectors (determinants with M_J = J times the
+    number of levels) and about 16 coefficient matrices of the levels (common
+    practice for a rough figure).
+    """
+
+    n_determinants: int
+    largest_block: int  # determinants of one configuration in one (M_L >= 0, 2M_S >= 0) block
+    memory_bytes: int
+
+    def describe(self) -> str:
+        return (f"{self.n_determinants} determinants, largest block {self.largest_block} "
+                f"determinants, about {self.memory_bytes / 2**30:.2f} GiB of memory")
+
+
+def memory_limit_gb() -> float:
+    """The size guard's limit: ``FINEFIT_MEMORY_LIMIT_GB`` if set to a positive number."""
+    text = os.environ.get("FINEFIT_MEMORY_LIMIT_GB", "").strip()
+    try:
+        value = float(text)
+    except ValueError:
+        return DEFAULT_MEMORY_LIMIT_GB
+    return value if value > 0 else DEFAULT_MEMORY_LIMIT_GB
+
+
+def _shell_counts(l: int, n_el: int) -> Counter:
+    """Number of determinants of l^N per (M_L, 2M_S)."""
+    orbitals = [(ml, ms2) for ml in range(-l, l + 1) for ms2 in (1, -1)]
+    return Counter(
+        (sum(o[0] for o in c), sum(o[1] for o in c))
+        for c in itertools.combinations(orbitals, n_el)
+    )
+
+
+def estimate_size(
+    shells: list[tuple[int, int]], occupancies: list[tuple[int, ...]]
+) -> SizeEstimate:
+    """Determinants, largest block and peak memory of a set (per-subshell counts convolved)."""
+    total, largest = 0, 0
+    per_mj: Counter = Counter()  # determinants per 2M_J over the whole set
+    for occ in occupancies:
+        counts = Counter({(0, 0): 1})
+        n_det = 1
+        for (_, l), k in zip(shells, occ, strict=True):
+            n_det *= comb(4 * l + 2, k)
+            if k in (0, 4 * l + 2):
+                continue
+            part = _shell_counts(l, k)
+            new: Counter = Counter()
+            for (a, b), x in counts.items():
+                for (c, d), y in part.items():
+                    new[(a + c, b + d)] += x * y
+            counts = new
+        total += n_det
+        largest = max([largest] + [x for (ml, ms2), x in counts.items() if ml >= 0 and ms2 >= 0])
+        for (ml, ms2), x in counts.items():
+            per_mj[2 * ml + ms2] += x
+    doubles = 4 * largest * largest
+    for mj2, n_mj in per_mj.items():
+        if mj2 >= 0:
+            levels = n_mj - per_mj.get(mj2 + 2, 0)  # states of J = M_J
+            doubles += n_mj * levels + 16 * levels * levels
+    return SizeEstimate(total, largest, 8 * doubles)
 
 
 @dataclass(frozen=True)
@@ -177,6 +255,15 @@ class Basis:
                 n_det *= comb(4 * l + 2, k)
             infos.append(ConfigurationInfo(i, c, texts[i], occ, open_shells, n_det))
         self.configs: list[ConfigurationInfo] = infos
+        self.size = estimate_size(self.shells, [c.occupancy for c in infos])
+        limit = memory_limit_gb()
+        if self.size.memory_bytes > limit * 2**30:
+            raise FinefitError(
+                f"{' + '.join(texts)} is too large to build: {self.size.describe()}, above "
+                f"the limit of {limit:g} GiB (set FINEFIT_MEMORY_LIMIT_GB to raise it, or "
+                "remove a configuration or subshell)",
+                "configurations",
+            )
         self._build_blocks()
         self._coulomb_terms, self.integral_classes = coulomb_terms(self.spin_orbitals)
         self._lplus = lplus_terms(self.spin_orbitals, list(range(len(self.shells))))
@@ -375,6 +462,7 @@ class Basis:
                                 new_groups.append(g[start:i])
                                 start = i
                     groups = new_groups
+        # diagonal of R^T op R as one matrix product (a three-operand einsum is ~10x slower)
         qn = {(k, p): np.sum(R * (op @ R), axis=0) for k, p, op in ops}
         index_of = np.zeros(n, dtype=int)
         for g in groups:
