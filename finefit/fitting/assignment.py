@@ -190,3 +190,85 @@ def attach_block(
             result[i] = k
             taken[k] = True
     return result, warnings
+
+
+# Weights of the global attachment cost (in units of one squared standard deviation of
+# the fit): a label-compatible state costs LABEL_WEIGHT * (1 - overlap); an unlabelled
+# level off its configuration costs CONFIG_WEIGHT; keeping the present state earns
+# KEEP_BONUS; energy distances are capped at ENERGY_CAP so that a far state is just "far".
+LABEL_WEIGHT = 4.0
+CONFIG_WEIGHT = 9.0
+KEEP_BONUS = 0.25
+ENERGY_CAP = 400.0
+# a labelled level may sit only on states whose overlap with its label is at least this
+# fraction of the best overlap any state has (a 52/48 mixed pair: both; 90/10: one)
+COMPATIBLE_FRACTION = 0.5
+
+
+def label_compatibility(
+    levels: list[ObservedLevel], vectors: np.ndarray, coupling: dict
+) -> tuple[np.ndarray, np.ndarray]:
+    """Per level and state: squared overlap with the label, and whether the state may carry it.
+
+    Unlabelled levels get overlap 0 and every state compatible.
+    """
+    n_lev, n = len(levels), vectors.shape[1]
+    overlap = np.zeros((n_lev, n))
+    ok = np.ones((n_lev, n), dtype=bool)
+    J = levels[0].J
+    J2 = int(round(2 * J))
+    for i, lv in enumerate(levels):
+        if not lv.label:
+            continue
+        _, o = label_overlaps(coupling, J2, lv.label, J, vectors)
+        overlap[i] = o
+        ok[i] = o >= COMPATIBLE_FRACTION * o.max()
+    return overlap, ok
+
+
+def global_attach_block(
+    levels: list[ObservedLevel],
+    energies: np.ndarray,
+    vectors: np.ndarray,
+    coupling: dict,
+    state_config: np.ndarray,
+    config_names: list[str],
+    current: np.ndarray,
+    scale: float,
+) -> np.ndarray:
+    """One global assignment of the levels of a J block to its eigenstates.
+
+    Minimises, with scipy's linear_sum_assignment, the sum over levels of
+    ((E_obs - E_calc)/scale)^2 (capped), a label term LABEL_WEIGHT (1 - overlap) in the
+    label's own scheme, a configuration term for unlabelled levels and a small bonus
+    for the present state; labelled levels may take only label-compatible states,
+    pinned levels keep theirs.
+    """
+    n = energies.size
+    e_obs = np.array([lv.energy for lv in levels])
+    dist = ((e_obs[:, None] - energies[None, :]) / scale) ** 2
+    cost = np.minimum(dist, ENERGY_CAP)
+    overlap, ok = label_compatibility(levels, vectors, coupling)
+    weights = vectors**2
+    cfg_weight = np.zeros((len(config_names), n))
+    np.add.at(cfg_weight, state_config, weights)
+    for i, lv in enumerate(levels):
+        if lv.label:
+            cost[i] += LABEL_WEIGHT * (1.0 - overlap[i])
+        elif lv.configuration in config_names:
+            cost[i] += CONFIG_WEIGHT * (1.0 - cfg_weight[config_names.index(lv.configuration)])
+        if 0 <= current[i] < n:
+            cost[i, current[i]] -= KEEP_BONUS
+    big = 1e9
+    cost = np.where(ok, cost, big)
+    pinned = [i for i, lv in enumerate(levels) if lv.state is not None]
+    result = current.copy()
+    free_levels = [i for i in range(len(levels)) if i not in pinned]
+    taken = {int(current[i]) for i in pinned}
+    free_states = [j for j in range(n) if j not in taken]
+    if free_levels:
+        sub = cost[np.ix_(free_levels, free_states)]
+        r, c = linear_sum_assignment(sub)
+        for a, b in zip(r, c, strict=True):
+            result[free_levels[a]] = free_states[b]
+    return result
