@@ -16,7 +16,7 @@ from finefit.radial import (
     hartree_fock,
     hydrogenic,
 )
-from finefit.session import Session, load
+from finefit.session import Session, load, optimise_levels
 
 __version__ = "0.1.0"
 
@@ -34,6 +34,7 @@ __all__ = [
     "Session",
     "Solution",
     "load",
+    "optimise_levels",
     "hydrogenic_zeta",
     "lande_zeta",
 ]
