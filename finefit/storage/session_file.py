@@ -16,8 +16,8 @@ import tomli_w
 
 from finefit.errors import FinefitError
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
-from finefit.storage.level_sets import LevelSet, dump_level_sets, parse_level_sets
 from finefit.notation.jvalues import format_j, parse_j
+from finefit.storage.level_sets import LevelSet, dump_level_sets, parse_level_sets
 
 FORMAT = "finefit-session/1"
 
