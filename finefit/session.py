@@ -505,6 +505,7 @@ class Session:
         blends: str = "exclude",
         medium: str | None = None,
         uncertainty: float | None = None,
+        source: str | None = None,
     ):
         """Level energies from a line list by weighted least squares (levelopt module).
 
@@ -513,7 +514,8 @@ class Session:
         combinations of the session's levels within ``tolerance`` (default: three times
         the combined uncertainty of the line and two typical levels, common practice).
         Lines without an uncertainty take ``uncertainty`` (cm^-1). ``reference`` (an id
-        or label) is held fixed; default the lowest level that has a line.
+        or label) is held fixed; default the lowest level that has a line. ``source``
+        names the line list in the record (default: the file name given).
         """
         import numpy as np
 
@@ -522,7 +524,8 @@ class Session:
         from finefit.storage.line_tables import LineList, read_lines
 
         ll = lines if isinstance(lines, LineList) else read_lines(lines, medium)
-        source = "" if isinstance(lines, LineList) else str(lines)
+        if source is None:
+            source = "" if isinstance(lines, LineList) else str(lines)
         n = ll.wavenumber.size
         unc = np.full(n, np.nan) if ll.uncertainty is None else np.array(ll.uncertainty)
         if uncertainty is not None:

@@ -248,6 +248,41 @@ class LevelOptimisation:
     def _index(self) -> dict[str, int]:
         return {k: i for i, k in enumerate(self.covariance_ids)}
 
+    def to_dict(self) -> dict:
+        """Plain data for JSON (NaN and infinities as null)."""
+
+        def num(x):
+            return None if x is None or not np.isfinite(x) else float(x)
+
+        return {
+            "source": self.source, "reference": self.reference, "blends": self.blends,
+            "chi2": self.chi2, "dof": self.dof, "reduced_chi2": num(self.reduced_chi2),
+            "n_lines_used": self.n_used,
+            "levels": [
+                {"id": d.id, "J": d.J, "parity": d.parity, "energy": d.energy,
+                 "uncertainty": d.uncertainty, "previous": d.previous,
+                 "previous_uncertainty": d.previous_uncertainty, "n_lines": d.n_lines,
+                 "part": d.part, "reference": d.reference, "flags": list(d.flags)}
+                for d in self.details.values()
+            ],
+            "lines": [
+                {"line": x.source_line, "lower": x.lower, "upper": x.upper,
+                 "wavenumber": x.wavenumber, "uncertainty": x.uncertainty,
+                 "intensity": x.intensity, "ritz": x.ritz,
+                 "ritz_uncertainty": x.ritz_uncertainty, "obs_minus_ritz": x.residual,
+                 "normalised": x.normalised, "vacuum_wavelength": x.vacuum_wavelength,
+                 "vacuum_wavelength_uncertainty": x.vacuum_wavelength_uncertainty,
+                 "air_wavelength": x.air_wavelength,
+                 "air_wavelength_uncertainty": x.air_wavelength_uncertainty,
+                 "used": x.used, "flags": list(x.flags)}
+                for x in self.lines
+            ],
+            "unclassified": [int(i) for i in self.unclassified],
+            "parts": [{"reference": r, "levels": ids} for r, ids in self.parts],
+            "unconnected": list(self.unconnected),
+            "warnings": list(self.warnings),
+        }
+
     def lines_of(self, level_id: str) -> list[RitzLine]:
         """The classified lines that start or end on a level."""
         return [x for x in self.lines if level_id in (x.lower, x.upper)]
