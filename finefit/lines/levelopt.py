@@ -26,6 +26,7 @@ import scipy.sparse.linalg
 
 from finefit.errors import FinefitError
 from finefit.lines.classify import KnownLevel
+from finefit.radial import single_threaded_blas
 
 DENSE_LIMIT = 4000  # free levels up to which the full covariance is formed (128 MB)
 OUTLIER = 3.0  # |obs - Ritz| beyond this many of its standard deviations is flagged
@@ -129,14 +130,16 @@ def solve_level_system(
     same = (part[lower] == part[upper]) & (part[lower] >= 0)
     if n_free:
         if n_free <= dense_limit:
-            # dense Cholesky: the energies and the full inverse (LAPACK potrf, potri)
+            # dense Cholesky: the energies and the full inverse (LAPACK potrf, potri); one
+            # BLAS thread, as threaded BLAS is much slower on a busy machine (radial)
             Nd = N.toarray()
-            try:
-                c_fac, low = scipy.linalg.cho_factor(Nd, lower=False, check_finite=False)
-            except np.linalg.LinAlgError:
-                raise FinefitError("the level system is singular", "lines") from None
-            x = scipy.linalg.cho_solve((c_fac, low), b, check_finite=False)
-            inv, info = scipy.linalg.lapack.dpotri(c_fac, lower=0)
+            with single_threaded_blas():
+                try:
+                    c_fac, low = scipy.linalg.cho_factor(Nd, lower=False, check_finite=False)
+                except np.linalg.LinAlgError:
+                    raise FinefitError("the level system is singular", "lines") from None
+                x = scipy.linalg.cho_solve((c_fac, low), b, check_finite=False)
+                inv, info = scipy.linalg.lapack.dpotri(c_fac, lower=0)
             if info != 0:
                 raise FinefitError("the level system is singular", "lines")
             cov = np.triu(inv) + np.triu(inv, 1).T
@@ -146,8 +149,9 @@ def solve_level_system(
         else:
             # sparse LU: the energies, then the covariance column block by column block
             # (never stored whole); only the variances and the equations' cross terms kept
-            lu = scipy.sparse.linalg.splu(N)
-            x = lu.solve(b)
+            with single_threaded_blas():
+                lu = scipy.sparse.linalg.splu(N)
+                x = lu.solve(b)
             both = np.flatnonzero(same & (lo_c >= 0) & (up_c >= 0))
             by_lower = both[np.argsort(lo_c[both])]
             lc_sorted = lo_c[by_lower]
@@ -156,7 +160,8 @@ def solve_level_system(
                 stop = min(start + step, n_free)
                 E = np.zeros((n_free, stop - start))
                 E[np.arange(start, stop), np.arange(stop - start)] = 1.0
-                X = lu.solve(E)
+                with single_threaded_blas():
+                    X = lu.solve(E)
                 var[free[start:stop]] = X[np.arange(start, stop), np.arange(stop - start)]
                 i0, i1 = np.searchsorted(lc_sorted, [start, stop])
                 k = by_lower[i0:i1]

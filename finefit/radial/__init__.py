@@ -12,6 +12,7 @@ unless ``unit="hartree"``.  Method and sources: :mod:`finefit.radial.solver` (HF
 :mod:`finefit.radial.grid` (discretisation), :mod:`finefit.radial.relativistic`.
 """
 
+from finefit.radial._threads import single_threaded_blas
 from finefit.radial.atom import (
     average_energy_differences,
     configuration_interaction_integral,
@@ -23,6 +24,7 @@ from finefit.radial.result import HartreeFockResult
 from finefit.radial.units import ALPHA, HARTREE_CM, RYDBERG_CM
 
 __all__ = [
+    "single_threaded_blas",
     "ALPHA",
     "HARTREE_CM",
     "RYDBERG_CM",
