@@ -556,7 +556,8 @@ def cmd_optimise(args) -> int:
     s = _load(args.session)
     ll = read_lines(args.lines, args.medium)
     opt = s.optimise_levels(ll, args.tolerance, args.reference, args.blends,
-                            uncertainty=args.uncertainty, source=args.lines)
+                            uncertainty=args.uncertainty, source=args.lines,
+                            exclude=args.exclude or ())
     labels = {lv.id: lv.label or "" for lv in s.levels}
     shown = opt.lines
     if args.level:
@@ -726,6 +727,8 @@ def build_parser() -> argparse.ArgumentParser:
                     help="lines with two classifications: left out of the fit (default) or "
                     "shared between them")
     sp.add_argument("--medium", choices=("air", "vacuum"), help="medium of the wavelengths")
+    sp.add_argument("--exclude", type=int, action="append", metavar="FILE_LINE",
+                    help="keep the line on this file line out of the fit (repeatable)")
     sp.add_argument("--level", help="list only the lines of this level")
     sp.add_argument("--flagged", action="store_true", help="list only flagged lines")
     sp.add_argument("--limit", type=int, default=200, help="list at most this many lines")

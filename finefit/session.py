@@ -506,6 +506,7 @@ class Session:
         medium: str | None = None,
         uncertainty: float | None = None,
         source: str | None = None,
+        exclude=(),
     ):
         """Level energies from a line list by weighted least squares (levelopt module).
 
@@ -515,7 +516,9 @@ class Session:
         the combined uncertainty of the line and two typical levels, common practice).
         Lines without an uncertainty take ``uncertainty`` (cm^-1). ``reference`` (an id
         or label) is held fixed; default the lowest level that has a line. ``source``
-        names the line list in the record (default: the file name given).
+        names the line list in the record (default: the file name given). ``exclude``
+        lists file line numbers of lines kept out of the fit (their Ritz values are
+        still given).
         """
         import numpy as np
 
@@ -561,8 +564,15 @@ class Session:
             c = classify_lines(known, ll.wavenumber, tol, unc)
             classes = [[(a, b) for a, b, _ in m] for m in c.matches]
         ref = None if reference is None else self.resolve_level(reference, "reference")
+        rows = {int(x): i for i, x in enumerate(ll.source_lines)}
+        skip = []
+        for x in exclude:
+            if int(x) not in rows:
+                raise FinefitError(f"{source or 'line list'}: there is no line on file line "
+                                   f"{x} to exclude", str(x))
+            skip.append(rows[int(x)])
         return optimise_levels(self.known_levels(), ll.wavenumber, unc, classes, ref, blends,
-                               ll.intensity, ll.source_lines, source=source)
+                               ll.intensity, ll.source_lines, source=source, exclude=skip)
 
     def apply_levels(self, opt, name: str | None = None, note: str = "") -> LevelSet:
         """Take optimised energies and uncertainties as the session's observed levels.

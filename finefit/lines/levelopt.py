@@ -346,6 +346,7 @@ def optimise_levels(
     outlier: float = OUTLIER,
     dense_limit: int = DENSE_LIMIT,
     source: str = "",
+    exclude=(),
 ) -> LevelOptimisation:
     """Optimise level energies from classified lines.
 
@@ -355,7 +356,9 @@ def optimise_levels(
     with ``"share"`` each classification enters with the line's weight divided among
     them (uncertainty u sqrt(k) for k classifications). ``reference`` is the level held
     fixed (default: the lowest level that has a line); parts of the level system not
-    connected to it keep their own lowest level fixed and are reported.
+    connected to it keep their own lowest level fixed and are reported. Lines whose
+    index is in ``exclude`` keep their classification and Ritz values but do not enter
+    the fit (flag "excluded"), e.g. a line found to be blended with an impurity.
     """
     if blends not in ("exclude", "share"):
         raise FinefitError(f"blends must be 'exclude' or 'share', not {blends!r}", "blends")
@@ -390,6 +393,8 @@ def optimise_levels(
         raise FinefitError(f"line {int(src[i])}: the uncertainty must be positive",
                            f"line {int(src[i])}")
     used = ~blend if blends == "exclude" else np.ones(eq_line.size, dtype=bool)
+    left_out = np.isin(eq_line, np.asarray(list(exclude), dtype=np.int64))
+    used &= ~left_out
     u_eff = u[eq_line] * (np.sqrt(k_eq) if blends == "share" else 1.0)
     if not np.any(used):
         raise FinefitError("no classified line is left to optimise the levels from "
@@ -432,8 +437,8 @@ def optimise_levels(
             outlier_levels.update((int(eq_lo[k]), int(eq_up[k])))
         if blend[k]:
             flags.append("blend")
-            if not used[k]:
-                flags.append("excluded")
+        if not used[k]:
+            flags.append("excluded")
         if defines[k]:
             flags.append("defines level")
         out_lines.append(RitzLine(
