@@ -8,9 +8,10 @@ weighted graph Laplacian of the level system without the reference's row and col
 and its inverse is the covariance of the energies (relative to the reference). The
 Ritz wavenumber of any line is E_up - E_lo with variance a^T C a (a = e_up - e_lo);
 residuals obs - Ritz are normalised by their own standard deviation
-sqrt(u^2 - u_Ritz^2) (the line is part of the fit). This is the standard method of
-deriving levels from a line list (Radziemski & Kaufman 1969, JOSA 59, 424; Kramida
-2011, Comput. Phys. Commun. 182, 419). Pure computation: no file I/O.
+sqrt(u^2 - u_Ritz^2) (the line is part of the fit). The Ritz combination principle
+(Ritz 1908) solved by weighted linear least squares (Bevington & Robinson, Data
+Reduction and Error Analysis for the Physical Sciences, 3rd ed. 2003, ch. 7), the usual
+way levels are derived from a line list. Pure computation: no file I/O.
 """
 
 from __future__ import annotations
