@@ -435,7 +435,8 @@ def optimise_levels(
         z = norm[k]
         if np.isfinite(z) and abs(z) > outlier:
             flags.append("outlier")
-            outlier_levels.update((int(eq_lo[k]), int(eq_up[k])))
+            if used[k]:  # a line kept out of the fit no longer pulls its levels
+                outlier_levels.update((int(eq_lo[k]), int(eq_up[k])))
         if blend[k]:
             flags.append("blend")
         if not used[k]:
