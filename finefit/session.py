@@ -607,6 +607,8 @@ class Session:
             name=name, created=stamp, source=opt.source, reference=opt.reference,
             energies=energies, uncertainties=uncs, previous=prev, previous_uncertainties=prev_u,
             blends=opt.blends, n_lines=opt.n_used, n_levels=len(energies), chi2=opt.chi2,
+            excluded=sorted({x.source_line for x in opt.lines
+                             if "excluded" in x.flags and "blend" not in x.flags}),
             dof=opt.dof, note=note or "; ".join(opt.warnings),
         )
         self.level_sets.append(ls)

@@ -13,8 +13,8 @@ from typing import Any
 
 from finefit.errors import FinefitError
 
-LEVEL_SET_KEYS = ("name", "created", "source", "reference", "blends", "n_lines", "n_levels",
-                  "chi2", "dof", "note", "energies", "uncertainties", "previous",
+LEVEL_SET_KEYS = ("name", "created", "source", "reference", "blends", "excluded", "n_lines",
+                  "n_levels", "chi2", "dof", "note", "energies", "uncertainties", "previous",
                   "previous_uncertainties")
 
 
@@ -31,6 +31,7 @@ class LevelSet:
     previous: dict[str, float] = field(default_factory=dict)
     previous_uncertainties: dict[str, float] = field(default_factory=dict)
     blends: str = "exclude"
+    excluded: list[int] = field(default_factory=list)  # file lines kept out of the fit
     n_lines: int = 0
     n_levels: int = 0
     chi2: float | None = None
@@ -81,6 +82,11 @@ def parse_level_sets(items: Any, source: str) -> list[LevelSet]:
         if chi2 is not None and (isinstance(chi2, bool) or not isinstance(chi2, int | float)):
             raise FinefitError(f"{source}: {ctx}, key 'chi2' must be a number, got {chi2!r}",
                                "chi2")
+        excluded = entry.get("excluded", [])
+        if not isinstance(excluded, list) or not all(
+                isinstance(x, int) and not isinstance(x, bool) for x in excluded):
+            raise FinefitError(f"{source}: {ctx}, key 'excluded' must be a list of file line "
+                               "numbers", "excluded")
         unc = _numbers(entry, "uncertainties", ctx, source)
         if any(not v >= 0 for v in unc.values()):
             raise FinefitError(f"{source}: {ctx} uncertainties must not be negative", ctx)
@@ -89,7 +95,7 @@ def parse_level_sets(items: Any, source: str) -> list[LevelSet]:
             reference=text["reference"], energies=_numbers(entry, "energies", ctx, source),
             uncertainties=unc, previous=_numbers(entry, "previous", ctx, source),
             previous_uncertainties=_numbers(entry, "previous_uncertainties", ctx, source),
-            blends=text["blends"] or "exclude", n_lines=ints["n_lines"],
+            blends=text["blends"] or "exclude", excluded=list(excluded), n_lines=ints["n_lines"],
             n_levels=ints["n_levels"], chi2=None if chi2 is None else float(chi2),
             dof=ints["dof"], note=text["note"],
         ))
@@ -101,7 +107,8 @@ def dump_level_sets(sets: list[LevelSet]) -> list[dict[str, Any]]:
     out = []
     for ls in sets:
         d = {"name": ls.name, "created": ls.created, "source": ls.source,
-             "reference": ls.reference, "blends": ls.blends, "n_lines": ls.n_lines,
+             "reference": ls.reference, "blends": ls.blends,
+             "excluded": list(ls.excluded) or None, "n_lines": ls.n_lines,
              "n_levels": ls.n_levels, "chi2": ls.chi2, "dof": ls.dof, "note": ls.note or None,
              "energies": dict(ls.energies), "uncertainties": dict(ls.uncertainties),
              "previous": dict(ls.previous),
