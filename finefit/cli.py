@@ -423,9 +423,12 @@ def cmd_lines(args) -> int:
             raise FinefitError(f"--radial {item!r} must look like 3s,3p=4.5", item) from None
         radial[(a, b)] = _float(value, f"--radial {pair}")
     air_range = (0.0, 0.0) if args.vacuum else tuple(args.air_range)
+    opt = None
+    if args.optimise:
+        opt = s.optimise_levels(args.optimise)  # for the Ritz covariance; nothing stored
     with _err_console().status("line strengths (Hartree-Fock for missing radial integrals)"):
         lines, used = s.predict_lines(radial, air_range=air_range,
-                                      observed=not args.calculated)
+                                      observed=not args.calculated, optimised=opt)
     lines = [x for x in lines if x.gf >= args.min_gf][: args.limit]
     if args.json:
         _json({
@@ -706,6 +709,9 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--calculated", action="store_true",
                     help="calculated energies throughout (default: Ritz values of the observed "
                     "levels where both are observed)")
+    sp.add_argument("--optimise", metavar="LINES",
+                    help="optimise the levels from this line list first (not stored) and take "
+                    "the Ritz values and their uncertainties from its covariance")
     sp.set_defaults(func=cmd_lines)
 
     sp = add("classify", "classify an observed line list by Ritz combinations of the levels")
