@@ -234,7 +234,7 @@ def test_readme_tour_on_the_invented_demo(tmp_path, capsys):
     assert main(["lines", str(s_path), "--optimise", lines, "--json"]) == 0
     with_cov = json.loads(capsys.readouterr().out)["lines"]
     ritz = [x for x in with_cov if x["from"] == "Ritz"]
-    assert ritz and all(x["wavenumber_uncertainty"] < 0.01 for x in ritz)
+    assert ritz and np.median([x["wavenumber_uncertainty"] for x in ritz]) < 0.005
     assert main(["search", str(s_path), lines, "--J", "2", "--parity", "even", "--energy",
                  "74665", "--tolerance", "0.02", "--json"]) == 0
     cands = json.loads(capsys.readouterr().out)
