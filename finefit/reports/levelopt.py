@@ -143,7 +143,8 @@ def line_rows(opt: LevelOptimisation) -> list[list[str]]:
 
 def publication_tables(opt: LevelOptimisation, labels: dict[str, str] | None = None,
                        ion: str = "") -> dict[str, str]:
-    """File name -> content: optimised levels and Ritz lines, LaTeX (booktabs) and CSV."""
+    """File name -> content: optimised levels and Ritz lines, LaTeX (booktabs) and CSV, and
+    the level covariance (CSV, cm^-2, relative to the reference) where it was formed."""
     what = f" of {ion}" if ion else ""
     red = opt.reduced_chi2
     lcap = (f"Optimised energy levels{what} (cm-1) from {opt.n_used} classified lines; "
@@ -152,7 +153,14 @@ def publication_tables(opt: LevelOptimisation, labels: dict[str, str] | None = N
     rcap = (f"Classified lines{what} with Ritz wavenumbers (cm-1) and wavelengths (angstrom; "
             "air from 2000 A up) of the optimised levels.")
     l_rows, r_rows = level_rows(opt, labels), line_rows(opt)
-    return {
+    extra = {}
+    if opt.covariance is not None:
+        # the full covariance (cm^-2) of the free levels, for Ritz values of any pair later
+        ids = opt.covariance_ids
+        extra["level_covariance.csv"] = to_csv(
+            ["level"] + ids, [[i] + [f"{v:.6e}" for v in row]
+                              for i, row in zip(ids, opt.covariance, strict=True)])
+    return extra | {
         "optimised_levels.tex": to_latex(LEVEL_HEADER, l_rows, lcap, "tab:optimised-levels",
                                          {1, 4, 5, 6}),
         "optimised_levels.csv": to_csv(LEVEL_HEADER, l_rows),

@@ -220,6 +220,8 @@ def test_readme_tour_on_the_invented_demo(tmp_path, capsys):
     assert not [x for x in out["lines"] if "outlier" in x["flags"] and x["used"]]
     tex = (tmp_path / "tables" / "optimised_levels.tex").read_text()
     assert r"\toprule" in tex and "L012" in tex
+    cov = (tmp_path / "tables" / "level_covariance.csv").read_text().splitlines()
+    assert len(cov) == 1 + 12 and cov[0].startswith("level,L002")  # L001 is the reference
     csv = (tmp_path / "tables" / "ritz_lines.csv").read_text().splitlines()
     assert csv[0].startswith("Line,Lower,Upper") and len(csv) == 1 + len(out["lines"])
     s = load(s_path)
