@@ -514,7 +514,9 @@ class Session:
         columns is taken as classified; otherwise every line is classified here by Ritz
         combinations of the session's levels within ``tolerance`` (default: three times
         the combined uncertainty of the line and two typical levels, common practice).
-        Lines without an uncertainty take ``uncertainty`` (cm^-1). ``reference`` (an id
+        Lines without an uncertainty take ``uncertainty`` (cm^-1); a list without any
+        weighs all lines alike and estimates their common uncertainty from the residuals
+        (sqrt(chi^2/dof)), and says so in ``warnings``. ``reference`` (an id
         or label) is held fixed; default the lowest level that has a line. ``source``
         names the line list in the record (default: the file name given). ``exclude``
         lists file line numbers of lines kept out of the fit (their Ritz values are
@@ -535,6 +537,12 @@ class Session:
             if not float(uncertainty) > 0:
                 raise FinefitError("the line uncertainty must be positive", "uncertainty")
             unc = np.where(np.isfinite(unc), unc, float(uncertainty))
+        # a list without any uncertainty: equal weights, the common uncertainty estimated
+        # from the residuals afterwards (a start of tolerance/3, 0.05 cm-1 by default,
+        # for the classification window: common practice)
+        estimate = not np.any(np.isfinite(unc))
+        if estimate:
+            unc = np.full(n, (tolerance if tolerance else 0.05) / 3.0)
         missing = np.flatnonzero(~np.isfinite(unc))
         if missing.size:
             raise FinefitError(
@@ -571,8 +579,19 @@ class Session:
                 raise FinefitError(f"{source or 'line list'}: there is no line on file line "
                                    f"{x} to exclude", str(x))
             skip.append(rows[int(x)])
-        return optimise_levels(self.known_levels(), ll.wavenumber, unc, classes, ref, blends,
-                               ll.intensity, ll.source_lines, source=source, exclude=skip)
+        opt = optimise_levels(self.known_levels(), ll.wavenumber, unc, classes, ref, blends,
+                              ll.intensity, ll.source_lines, source=source, exclude=skip)
+        if estimate and opt.dof > 0:
+            common = float(unc[0] * np.sqrt(opt.chi2 / opt.dof))
+            opt = optimise_levels(self.known_levels(), ll.wavenumber, np.full(n, common),
+                                  classes, ref, blends, ll.intensity, ll.source_lines,
+                                  source=source, exclude=skip)
+            opt.warnings.append(f"the line list gives no uncertainties: all lines weighted "
+                                f"alike, with {common:.2g} cm-1 estimated from the residuals")
+        elif estimate:
+            opt.warnings.append(f"the line list gives no uncertainties and no degree of freedom "
+                                f"is left: {unc[0]:.2g} cm-1 (tolerance/3) assumed per line")
+        return opt
 
     def apply_levels(self, opt, name: str | None = None, note: str = "") -> LevelSet:
         """Take optimised energies and uncertainties as the session's observed levels.

@@ -119,10 +119,23 @@ def test_classified_list_by_ids_and_labels(invented, tmp_path):
     half.write_text(f"wavenumber uncertainty lower upper\n{obs[0]} 0.002 L001 -\n")
     with pytest.raises(FinefitError, match="line 2"):
         finefit.optimise_levels(s, half)
-    none = tmp_path / "nounc.txt"
-    none.write_text(f"wavenumber\n{obs[0]}\n")
-    with pytest.raises(FinefitError, match="uncertainty"):
-        finefit.optimise_levels(s, none)
+    partly = tmp_path / "partly.txt"
+    partly.write_text(f"wavenumber,uncertainty\n{obs[0]},0.002\n{obs[1]},\n")
+    with pytest.raises(FinefitError, match="line 3: no uncertainty"):
+        finefit.optimise_levels(s, partly)
+
+
+def test_list_without_uncertainties_estimates_one_from_the_residuals(invented, tmp_path):
+    # all lines with 0.002 cm-1 noise, no uncertainty column: the common uncertainty
+    # sqrt(chi2/dof) of equal weights comes out near 0.002 (a chi-square with ~100
+    # degrees of freedom: within 20 %)
+    s, true, obs, lo, up = invented
+    path = tmp_path / "bare.txt"
+    path.write_text("wavenumber\n" + "".join(f"{w:.5f}\n" for w in obs))
+    opt = finefit.optimise_levels(s, path)
+    assert opt.reduced_chi2 == pytest.approx(1.0, abs=1e-9)
+    assert opt.lines[0].uncertainty == pytest.approx(0.002, rel=0.2)
+    assert any("estimated from the residuals" in w for w in opt.warnings)
 
 
 def test_air_wavelength_list_round_trip(invented, tmp_path):
