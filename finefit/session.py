@@ -11,6 +11,7 @@ This is the API the command line, the terminal workspace and notebooks share.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Callable
 from dataclasses import replace
 from datetime import UTC, datetime
@@ -468,7 +469,8 @@ class Session:
 
     # ------------------------------------------------------------------ level optimisation
     def resolve_level(self, text: str, where: str = "") -> str:
-        """A level id from an id, a label (``2p 3s 3P°``) or a label followed by J."""
+        """A level id from an id, a label (``2p 3s 3P°``) or a label followed by J
+        (``2p 3s 3P° 1``, or compact ``2p 3s 3P°1`` for labels without a trailing digit)."""
         from finefit.notation.jvalues import parse_j as pj
 
         def norm(x: str) -> str:
@@ -479,15 +481,21 @@ class Session:
             if lv.id == key:
                 return lv.id
         hits = [lv for lv in self.levels if lv.label and norm(lv.label) == norm(key)]
-        if len(hits) != 1 and " " in key:
-            head, tail = key.rsplit(None, 1)
+        splits = []
+        if " " in key:
+            splits.append(tuple(key.rsplit(None, 1)))  # "2p 3s 3P° 1"
+        compact = re.match(r"^(.*[A-Z][°*]?)(\d+/2|\d+(?:\.\d)?)$", key)
+        if compact:
+            splits.append((compact.group(1), compact.group(2)))  # "2p 3s 3P°1"
+        for head, tail in splits:
+            if len(hits) == 1:
+                break
             try:
                 j = pj(tail)
             except FinefitError:
-                j = None
-            if j is not None:
-                hits = [lv for lv in self.levels
-                        if lv.label and norm(lv.label) == norm(head) and lv.J == j]
+                continue
+            hits = [lv for lv in self.levels
+                    if lv.label and norm(lv.label) == norm(head) and lv.J == j]
         prefix = f"{where}: " if where else ""
         if len(hits) == 1:
             return hits[0].id

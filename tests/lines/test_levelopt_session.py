@@ -119,6 +119,10 @@ def test_classified_list_by_ids_and_labels(invented, tmp_path):
     half.write_text(f"wavenumber uncertainty lower upper\n{obs[0]} 0.002 L001 -\n")
     with pytest.raises(FinefitError, match="line 2"):
         finefit.optimise_levels(s, half)
+    # the trade's spellings of one level: id, "label J", compact, * for the odd mark
+    for text in ("L003", "2p 3s 3P° 2", "2p 3s 3P°2", "2p 3s 3P*2"):
+        assert s.resolve_level(text) == next(
+            lv.id for lv in s.levels if lv.label == "2p 3s 3P°" and lv.J == 2)
     partly = tmp_path / "partly.txt"
     partly.write_text(f"wavenumber,uncertainty\n{obs[0]},0.002\n{obs[1]},\n")
     with pytest.raises(FinefitError, match="line 3: no uncertainty"):
