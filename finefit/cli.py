@@ -726,7 +726,7 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("lines", help="line list; 'lower' and 'upper' columns (ids or labels) "
                     "classify it, otherwise it is classified here by Ritz combinations")
     sp.add_argument("--tolerance", type=float, help="classification window, cm-1 (default: "
-                    "3 x the line and two level uncertainties combined)")
+                    "3 x the line and two level uncertainties combined, at least 0.05)")
     sp.add_argument("--uncertainty", type=float, help="cm-1, for lines without one")
     sp.add_argument("--reference", help="level held fixed (default: the lowest with a line)")
     sp.add_argument("--blends", choices=("exclude", "share"), default="exclude",

@@ -521,7 +521,8 @@ class Session:
         ``lines`` is a line-list file (or a ``LineList``). A list with ``lower``/``upper``
         columns is taken as classified; otherwise every line is classified here by Ritz
         combinations of the session's levels within ``tolerance`` (default: three times
-        the combined uncertainty of the line and two typical levels, common practice).
+        the combined uncertainty of the line and two typical levels, common practice, but
+        at least 0.05 cm^-1).
         Lines without an uncertainty take ``uncertainty`` (cm^-1); a list without any
         weighs all lines alike and estimates their common uncertainty from the residuals
         (sqrt(chi^2/dof)), and says so in ``warnings``. ``reference`` (an id
@@ -572,9 +573,10 @@ class Session:
         else:
             known = self.known_levels()
             if tolerance is None:
-                u_lev = np.median([lv.uncertainty or self.options.default_uncertainty
-                                   for lv in self.levels]) if self.levels else 0.0
-                tol = 3.0 * np.sqrt(unc**2 + 2.0 * u_lev**2)
+                given = [lv.uncertainty for lv in self.levels if lv.uncertainty]
+                u_lev = float(np.median(given)) if given else 0.0
+                # never narrower than the classify command's default window
+                tol = np.maximum(0.05, 3.0 * np.sqrt(unc**2 + 2.0 * u_lev**2))
             else:
                 tol = float(tolerance)
             c = classify_lines(known, ll.wavenumber, tol, unc)
