@@ -11,6 +11,7 @@ This is the API the command line, the terminal workspace and notebooks share.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Callable
 from dataclasses import replace
 from datetime import UTC, datetime
@@ -27,6 +28,7 @@ from finefit.model.label_match import LabelTarget, resolve_label
 from finefit.notation.configuration import parse_configuration
 from finefit.notation.jvalues import parse_j
 from finefit.storage.atomic import atomic_write_text, read_text
+from finefit.storage.level_sets import LevelSet
 from finefit.storage.session_file import (
     Ion,
     ParameterSet,
@@ -67,6 +69,7 @@ class Session:
         self.note = data.note
         self.options = data.options
         self.parameter_sets: list[ParameterSet] = list(data.parameter_sets)
+        self.level_sets: list[LevelSet] = list(data.level_sets)
         self.configurations = [str(parse_configuration(c)) for c in data.configurations]
         self._sets = group_by_parity(self.configurations)
         self.models = {p: model_for(cfgs) for p, cfgs in self._sets.items()}
@@ -127,6 +130,7 @@ class Session:
             ion=self.ion, configurations=list(self.configurations),
             parameters=dict(self.parameters), levels=list(self.levels), options=self.options,
             parameter_sets=list(self.parameter_sets), title=self.title, note=self.note,
+            level_sets=list(self.level_sets),
         )
 
     def to_toml(self) -> str:
@@ -385,13 +389,20 @@ class Session:
         radial: dict[tuple[str, str], float] | None = None,
         min_strength: float = 0.0,
         air_range: tuple[float, float] = (2000.0, 20000.0),
+        observed: bool = True,
+        optimised=None,
     ):
         """E1 lines between the session's even and odd levels at the current values.
 
-        Wavenumbers come from the calculated energies, their uncertainties from the
-        covariance of a fit at the current set-up (combined in quadrature for the two
-        parities). Radial dipole integrals (bohr) not given in ``radial`` come from
-        Hartree-Fock runs. Returns (lines, radial integrals used).
+        Between two observed levels (attached to the computed states) the wavenumber is
+        the Ritz value of the observed energies (``line.source == "Ritz"``), with the
+        uncertainty from the covariance of ``optimised`` (a level optimisation) where
+        it holds both levels, else the two level uncertainties (or the fit's default
+        uncertainty) in quadrature. Where a level is unobserved its calculated energy is
+        used, with the uncertainty from the covariance of a fit at the current set-up.
+        ``observed=False`` uses calculated energies throughout. Radial dipole integrals
+        (bohr) not given in ``radial`` come from Hartree-Fock runs. Returns (lines,
+        radial integrals used).
         """
         from finefit.lines.radial_join import ab_initio_dipoles
         from finefit.lines.transitions import DipoleModel, predict_lines
@@ -419,8 +430,25 @@ class Session:
         def level_uncertainty(level):
             return unc.get((level.parity, level.block, level.position))
 
+        obs = {}
+        if observed:
+            for row in result.levels:
+                e, u = row.energy_obs, row.uncertainty or self.options.default_uncertainty
+                if optimised is not None and row.id in optimised.levels:
+                    e, u = optimised.levels[row.id]
+                obs[(row.parity, round(2 * row.J), row.state_rank - 1)] = (row.id, e, u)
+
+        def observed_level(level):
+            return obs.get((level.parity, level.block, level.position))
+
+        def ritz_uncertainty(lower_id: str, upper_id: str):
+            if optimised is None or lower_id not in optimised.levels \
+                    or upper_id not in optimised.levels:
+                return None
+            return optimised.ritz(lower_id, upper_id)[1]
+
         lines = predict_lines(dip, sols["even"], sols["odd"], given, min_strength,
-                              level_uncertainty, air_range)
+                              level_uncertainty, air_range, observed_level, ritz_uncertainty)
         return lines, given
 
     def search_level(
@@ -483,6 +511,182 @@ class Session:
         return [KnownLevel(lv.id, lv.energy, lv.J, lv.parity, lv.uncertainty or 0.0)
                 for lv in self.levels]
 
+    # ------------------------------------------------------------------ level optimisation
+    def resolve_level(self, text: str, where: str = "") -> str:
+        """A level id from an id, a label (``2p 3s 3P°``) or a label followed by J
+        (``2p 3s 3P° 1``, or compact ``2p 3s 3P°1`` for labels without a trailing digit)."""
+        from finefit.notation.jvalues import parse_j as pj
+
+        def norm(x: str) -> str:
+            return " ".join(x.replace("*", "°").split())
+
+        key = text.strip()
+        for lv in self.levels:
+            if lv.id == key:
+                return lv.id
+        hits = [lv for lv in self.levels if lv.label and norm(lv.label) == norm(key)]
+        splits = []
+        if " " in key:
+            splits.append(tuple(key.rsplit(None, 1)))  # "2p 3s 3P° 1"
+        compact = re.match(r"^(.*[A-Z][°*]?)(\d+/2|\d+(?:\.\d)?)$", key)
+        if compact:
+            splits.append((compact.group(1), compact.group(2)))  # "2p 3s 3P°1"
+        for head, tail in splits:
+            if len(hits) == 1:
+                break
+            try:
+                j = pj(tail)
+            except FinefitError:
+                continue
+            hits = [lv for lv in self.levels
+                    if lv.label and norm(lv.label) == norm(head) and lv.J == j]
+        prefix = f"{where}: " if where else ""
+        if len(hits) == 1:
+            return hits[0].id
+        if len(hits) > 1:
+            raise FinefitError(
+                f"{prefix}{text!r} names {len(hits)} levels "
+                f"({', '.join(lv.id for lv in hits)}); add J or use the level id", text)
+        raise FinefitError(f"{prefix}no level has the id or label {text!r}", text)
+
+    def optimise_levels(
+        self,
+        lines,
+        tolerance: float | None = None,
+        reference: str | None = None,
+        blends: str = "exclude",
+        medium: str | None = None,
+        uncertainty: float | None = None,
+        source: str | None = None,
+        exclude=(),
+    ):
+        """Level energies from a line list by weighted least squares (levelopt module).
+
+        ``lines`` is a line-list file (or a ``LineList``). A list with ``lower``/``upper``
+        columns is taken as classified; otherwise every line is classified here by Ritz
+        combinations of the session's levels within ``tolerance`` (default: three times
+        the combined uncertainty of the line and two typical levels, common practice, but
+        at least 0.05 cm^-1).
+        Lines without an uncertainty take ``uncertainty`` (cm^-1); a list without any
+        weighs all lines alike and estimates their common uncertainty from the residuals
+        (sqrt(chi^2/dof)), and says so in ``warnings``. ``reference`` (an id
+        or label) is held fixed; default the lowest level that has a line. ``source``
+        names the line list in the record (default: the file name given). ``exclude``
+        lists file line numbers of lines kept out of the fit (their Ritz values are
+        still given).
+        """
+        import numpy as np
+
+        from finefit.lines.classify import classify_lines
+        from finefit.lines.levelopt import optimise_levels
+        from finefit.storage.line_tables import LineList, read_lines
+
+        ll = lines if isinstance(lines, LineList) else read_lines(lines, medium)
+        if source is None:
+            source = "" if isinstance(lines, LineList) else str(lines)
+        n = ll.wavenumber.size
+        unc = np.full(n, np.nan) if ll.uncertainty is None else np.array(ll.uncertainty)
+        if uncertainty is not None:
+            if not float(uncertainty) > 0:
+                raise FinefitError("the line uncertainty must be positive", "uncertainty")
+            unc = np.where(np.isfinite(unc), unc, float(uncertainty))
+        # a list without any uncertainty: equal weights, the common uncertainty estimated
+        # from the residuals afterwards (a start of tolerance/3, 0.05 cm-1 by default,
+        # for the classification window: common practice)
+        estimate = not np.any(np.isfinite(unc))
+        if estimate:
+            unc = np.full(n, (tolerance if tolerance else 0.05) / 3.0)
+        missing = np.flatnonzero(~np.isfinite(unc))
+        if missing.size:
+            raise FinefitError(
+                f"{source or 'line list'} line {int(ll.source_lines[missing[0]])}: no "
+                "uncertainty (add an 'uncertainty' column or give a default uncertainty)",
+                "uncertainty")
+        if tolerance is not None and not tolerance > 0:
+            raise FinefitError("the classification tolerance must be positive", "tolerance")
+        if ll.lower is not None:
+            classes = []
+            for i in range(n):
+                where = f"line {int(ll.source_lines[i])}"
+                if not ll.lower[i]:
+                    classes.append([])
+                    continue
+                pairs = zip(ll.lower[i].split("+"), ll.upper[i].split("+"), strict=True)
+                classes.append([(self.resolve_level(a, where), self.resolve_level(b, where))
+                                for a, b in pairs])
+        else:
+            known = self.known_levels()
+            if tolerance is None:
+                given = [lv.uncertainty for lv in self.levels if lv.uncertainty]
+                u_lev = float(np.median(given)) if given else 0.0
+                # never narrower than the classify command's default window
+                tol = np.maximum(0.05, 3.0 * np.sqrt(unc**2 + 2.0 * u_lev**2))
+            else:
+                tol = float(tolerance)
+            c = classify_lines(known, ll.wavenumber, tol, unc)
+            classes = [[(a, b) for a, b, _ in m] for m in c.matches]
+        ref = None if reference is None else self.resolve_level(reference, "reference")
+        rows = {int(x): i for i, x in enumerate(ll.source_lines)}
+        skip = []
+        for x in exclude:
+            if int(x) not in rows:
+                raise FinefitError(f"{source or 'line list'}: there is no line on file line "
+                                   f"{x} to exclude", str(x))
+            skip.append(rows[int(x)])
+        opt = optimise_levels(self.known_levels(), ll.wavenumber, unc, classes, ref, blends,
+                              ll.intensity, ll.source_lines, source=source, exclude=skip)
+        if estimate and opt.dof > 0:
+            common = float(unc[0] * np.sqrt(opt.chi2 / opt.dof))
+            opt = optimise_levels(self.known_levels(), ll.wavenumber, np.full(n, common),
+                                  classes, ref, blends, ll.intensity, ll.source_lines,
+                                  source=source, exclude=skip)
+            opt.warnings.append(f"the line list gives no uncertainties: all lines weighted "
+                                f"alike, with {common:.2g} cm-1 estimated from the residuals")
+        elif estimate:
+            opt.warnings.append(f"the line list gives no uncertainties and no degree of freedom "
+                                f"is left: {unc[0]:.2g} cm-1 (tolerance/3) assumed per line")
+        return opt
+
+    def apply_levels(self, opt, name: str | None = None, note: str = "") -> LevelSet:
+        """Take optimised energies and uncertainties as the session's observed levels.
+
+        Every optimised level gets its energy and its uncertainty relative to the
+        reference (the reference keeps its own uncertainty: zero is no weight a fit can
+        use); a ``LevelSet`` record names the line list and keeps the replaced values.
+        """
+        from pathlib import PurePath
+
+        stamp = datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
+        if not name:
+            base = PurePath(opt.source).name if opt.source else "lines"
+            name, k = base, 2
+            while any(ls.name == name for ls in self.level_sets):
+                name, k = f"{base} ({k})", k + 1
+        elif any(ls.name == name for ls in self.level_sets):
+            raise FinefitError(f"a level set named {name!r} exists already", name)
+        energies, uncs, prev, prev_u = {}, {}, {}, {}
+        for lid, (e, u) in opt.levels.items():
+            lv = self.level(lid)
+            prev[lid] = lv.energy
+            if lv.uncertainty is not None:
+                prev_u[lid] = lv.uncertainty
+            changes = {"energy": float(e)}
+            if u > 0:
+                changes["uncertainty"] = float(u)
+                uncs[lid] = float(u)
+            energies[lid] = float(e)
+            self.update_level(lid, **changes)
+        ls = LevelSet(
+            name=name, created=stamp, source=opt.source, reference=opt.reference,
+            energies=energies, uncertainties=uncs, previous=prev, previous_uncertainties=prev_u,
+            blends=opt.blends, n_lines=opt.n_used, n_levels=len(energies), chi2=opt.chi2,
+            excluded=sorted({x.source_line for x in opt.lines
+                             if "excluded" in x.flags and "blend" not in x.flags}),
+            dof=opt.dof, note=note or "; ".join(opt.warnings),
+        )
+        self.level_sets.append(ls)
+        return ls
+
     # ------------------------------------------------------------------ parameter sets
     def keep(self, result: FitResult, name: str, note: str = "") -> ParameterSet:
         """Store a fit as a named, timestamped parameter set."""
@@ -538,3 +742,9 @@ class Session:
 def load(path: str | Path) -> Session:
     """Read a session file (the CONVENTIONS.md entry point)."""
     return Session.load(path)
+
+
+def optimise_levels(session: Session, lines, **options):
+    """Level energies of ``session`` optimised from a line list (CONVENTIONS.md,
+    "Level optimisation"); options as :meth:`Session.optimise_levels`."""
+    return session.optimise_levels(lines, **options)
