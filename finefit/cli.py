@@ -148,6 +148,10 @@ def _print_result(con: Console, s, r, args) -> None:
         tables.print_table(con, tables.prediction_table(r))
     for w in r.warnings:
         con.print(Text("warning: " + w, style="yellow"))
+    if r.next_steps:
+        con.print(Text("What to check next:", style="bold"))
+        for step in r.next_steps:
+            con.print(Text("  - " + step))
     con.print(Text(CAUTION, style="dim"))
 
 
@@ -164,7 +168,16 @@ def cmd_fit(args) -> int:
         def progress(it: int, rms: float) -> None:
             prog.update(task, description=f"fitting: evaluation {it}, rms {rms:.3f} cm-1")
 
-        r = s.fit(progress=progress)
+        r = s.fit(progress=progress, starts=args.starts, seed=args.seed)
+    if (args.write or args.keep) and not r.converged and not args.force:
+        if args.json:
+            _json(r.to_dict())
+        else:
+            _print_result(con, s, r, args)
+        raise FinefitError(
+            "the fit did not converge: nothing written (give --force to store it anyway)",
+            "--write" if args.write else "--keep",
+        )
     if args.write:
         s.apply(r)
     if args.keep:
@@ -839,6 +852,12 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--write", action="store_true", help="store the fitted values in the session")
     sp.add_argument("--keep", metavar="NAME", help="save the fit as a named parameter set")
     sp.add_argument("--predictions", action="store_true", help="also list unobserved levels")
+    sp.add_argument("--starts", type=int, default=1, metavar="N",
+                    help="also refit from the ab initio values and random starts (±30 %%); "
+                    "keep the best and say how many starts reached it")
+    sp.add_argument("--seed", type=int, default=0, help="seed of the random starts")
+    sp.add_argument("--force", action="store_true",
+                    help="with --write/--keep: store the values even if the fit did not converge")
     sp.set_defaults(func=cmd_fit)
 
     sp = add("check", "observed vs calculated at the current values (no fit)")

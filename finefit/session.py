@@ -334,11 +334,83 @@ class Session:
         self,
         should_stop: Callable[[], bool] | None = None,
         progress: Callable[[int, float], None] | None = None,
+        starts: int = 1,
+        seed: int = 0,
     ) -> FitResult:
-        """Fit with the session's options; the session's values are not changed."""
+        """Fit with the session's options; the session's values are not changed.
+
+        ``starts`` > 1 refits from further starting points: the ab initio values (F, G,
+        R^k at 0.85 of Hartree-Fock, common practice; zeta as computed) where the
+        session has them, then random perturbations of every varied value by up to
+        ±30 % (reproducible with ``seed``). The best result is kept (converged first,
+        then fewest label mismatches, then lowest chi-square) and says how many
+        starts reached it.
+        """
         result = self.problem().fit(should_stop=should_stop, progress=progress)
+        if starts > 1:
+            result = self._best_of_starts(result, starts, seed, should_stop)
         self.last_result = result
         return result
+
+    def _start_settings(self, k: int, rng) -> dict[str, ParameterSetting] | None:
+        settings = {n: p.copy() for n, p in self.parameters.items()}
+        kinds = {sp.name: sp.kind for m in self.models.values() for sp in m.parameter_specs}
+        if k == 1:
+            if not any(p.ab_initio for p in settings.values()):
+                return None
+            for n, p in settings.items():
+                if p.ab_initio and kinds.get(n) != "Eav" and (p.vary or p.link):
+                    scale = 1.0 if kinds.get(n) == "zeta" else 0.85
+                    p.value = p.ab_initio * scale
+        else:
+            for n, p in settings.items():
+                if (p.vary or p.link) and kinds.get(n) != "Eav" and p.value:
+                    p.value *= float(rng.uniform(0.7, 1.3))
+        for p in settings.values():
+            if p.min is not None:
+                p.value = max(p.value, p.min)
+            if p.max is not None:
+                p.value = min(p.value, p.max)
+        return settings
+
+    def _best_of_starts(self, first: FitResult, starts: int, seed: int, should_stop):
+        import dataclasses
+
+        import numpy as np
+
+        rng = np.random.default_rng(seed)
+        results = [first]
+        for k in range(1, starts):
+            settings = self._start_settings(k, rng)
+            if settings is None:
+                settings = self._start_settings(2, rng)
+            try:
+                prob = FitProblem(self.models, settings, self.levels, self.options)
+                results.append(prob.fit(should_stop=should_stop))
+            except FinefitError:
+                continue
+
+        def rank(r: FitResult):
+            return (not r.converged, sum(row.label_mismatch for row in r.levels), r.chi2)
+
+        best = min(results, key=rank)
+        tol = 1e-3 * best.chi2 + 1e-9
+        reached = sum(
+            1 for r in results if r.converged and abs(r.chi2 - best.chi2) <= tol
+        )
+        note = (
+            f"{reached} of {len(results)} starts reached this minimum"
+            + (f" (sigma {best.sigma:.4g} cm-1)" if best.sigma is not None else "")
+        )
+        others = sorted(
+            {round(r.sigma, 3) for r in results if r.converged and r.sigma is not None
+             and abs(r.chi2 - best.chi2) > tol}
+        )
+        if others:
+            note += "; other minima at sigma " + ", ".join(f"{x:g}" for x in others[:5])
+        return dataclasses.replace(
+            best, warnings=[*best.warnings, note], starts=(reached, len(results))
+        )
 
     @with_engine_threads
     def report(self) -> FitResult:

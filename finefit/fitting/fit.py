@@ -531,7 +531,8 @@ class FitProblem:
                 att.commit(new_idx, att.reference)
                 self._cache = {}
                 try:
-                    v_new, conv_new, msg_new = self._fit_to_fixed_point(v)
+                    # the trial attachment is held (followed along the eigenvectors only)
+                    v_new, conv_new, msg_new = self._minimize(v)
                 except FinefitError:
                     self._restore(base)
                     continue
@@ -555,7 +556,10 @@ class FitProblem:
                     self.warnings[-1] += (
                         f": chi-square {chi2:.6g} -> {chi2_new:.6g} after a refit"
                     )
-                    v, chi2 = v_new, chi2_new
+                    v_settled, conv_settled, msg_settled = self._fit_to_fixed_point(v_new)
+                    if not conv_settled:
+                        converged, message = False, msg_settled
+                    v, chi2 = v_settled, self._chi2(v_settled)
                     improved = True
                     break
                 self._restore(base)

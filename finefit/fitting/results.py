@@ -84,6 +84,7 @@ class FitResult:
     fitted: bool = True  # False for a report at given values (no fit was made)
     fixed_point: bool = True  # re-solving at the values with the states reproduces E_calc
     next_steps: list[str] = field(default_factory=list)  # "what to check next", plain words
+    starts: tuple[int, int] | None = None  # (starts that reached this minimum, starts made)
 
     def level(self, level_id: str) -> LevelRow:
         return next(r for r in self.levels if r.id == level_id)
@@ -156,4 +157,7 @@ class FitResult:
             "fitted": self.fitted,
             "fixed_point": self.fixed_point,
             "next_steps": list(self.next_steps),
+            "starts": None if self.starts is None else {
+                "reached": self.starts[0], "made": self.starts[1]
+            },
         }
