@@ -396,7 +396,8 @@ def cmd_abinitio(args) -> int:
         task = prog.add_task("ab initio values", total=None)
         res = s.fill_ab_initio(scales, set_values=not args.keep_values,
                                relativistic=args.relativistic,
-                               progress=lambda msg: prog.update(task, description=msg))
+                               progress=lambda msg: prog.update(task, description=msg),
+                               zeta_method=args.zeta)
     s.save()
     con = _console(args)
     tab = Table(title="Ab initio values (cm-1; configuration-average Hartree-Fock)",
@@ -614,6 +615,10 @@ def build_parser() -> argparse.ArgumentParser:
                     help="store the ab initio values only; leave the starting values")
     sp.add_argument("--relativistic", action="store_true",
                     help="add mass-velocity and Darwin corrections to E_av")
+    sp.add_argument("--zeta", choices=("blume-watson", "central-field"),
+                    default="blume-watson",
+                    help="spin-orbit parameters: Blume-Watson (default) or the central-field "
+                         "formula")
     sp.set_defaults(func=cmd_abinitio)
 
     sp = add("lines", "predicted E1 lines between the session's even and odd levels")
