@@ -38,7 +38,7 @@ def test_exchange_integral_is_not_trivial_and_finite(neon_ion):
 
 
 def test_neon_ion_2p_against_experiment(neon_ion):
-    # Ne II 2p5 2P: 2P1/2 - 2P3/2 = 780.4 cm-1 (NIST ASD / Moore 1949; from memory), and
+    # Ne II 2p5 2P: 2P1/2 - 2P3/2 = 780.4 cm-1 (Moore, Atomic Energy Levels, 1949; from memory), and
     # for p5 the interval is (3/2) zeta: zeta = 520.3 cm-1.
     zeta_obs = 780.4 / 1.5
     bw = neon_ion.zeta("2p")
