@@ -6,7 +6,7 @@ matrices (one per pair of subshells, from the determinant bases of both models)
 times radial dipole integrals. With both bases taken at M_J = J, the reduced element
 follows from Wigner-Eckart: <J M|D_q|J' M'> = (-1)^(J-M) (J 1 J'; -M q M') <J||D||J'>.
 S = |<J||D||J'>|^2 in (e a0)^2 when the radial integrals are in bohr (Condon &
-Shortley 1935; Cowan 1981, ch. 14).
+Shortley 1935; Sobelman 1979, the chapter on radiative transitions).
 """
 
 from __future__ import annotations
@@ -208,7 +208,7 @@ def predict_lines(
     ``air_range`` (angstrom; default 200 nm to 2 um, common practice), None outside.
 
     gf = (2/3) dE S and A = (4/3) alpha^3 dE^3 S / g_upper in atomic units (dE in hartree,
-    S in (e a0)^2; Cowan 1981, ch. 14); constants from scipy.constants.
+    S in (e a0)^2; Bethe & Salpeter 1957; Sobelman 1979); constants from scipy.constants.
     """
     from scipy.constants import fine_structure, physical_constants
 
