@@ -33,6 +33,7 @@ from finefit.angular.operators import (
     lplus_terms,
     pairing_terms,
     splus_terms,
+    subshell_casimir_terms,
 )
 from finefit.angular.wigner import clebsch_gordan2
 from finefit.errors import FinefitError
@@ -252,6 +253,12 @@ class Basis:
             if l == 2:
                 parts.append(seniority_terms(so, s))
                 ops.append(EffectiveOperator(s, "beta", "beta", 0, 2, (), len(parts) - 1))
+            if l == 3:
+                # beta = G(G2), gamma = G(R7) (CONVENTIONS.md; Racah 1949)
+                for name, group in (("beta", "G2"), ("gamma", "SO")):
+                    one, two = subshell_casimir_terms(so, s, group)
+                    parts.append(two)
+                    ops.append(EffectiveOperator(s, name, name, 0, 2, tuple(one), len(parts) - 1))
         self.effective_operators: list[EffectiveOperator] = ops
         self._effective_terms = stack_two_body(parts) if parts else None
 
