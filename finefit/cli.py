@@ -382,6 +382,10 @@ def cmd_abinitio(args) -> int:
     from rich.progress import Progress, SpinnerColumn, TextColumn
 
     s = _load(args.session)
+    if args.zeta not in ("blume-watson", "central-field"):
+        raise FinefitError(
+            f"--zeta {args.zeta!r}: use 'blume-watson' or 'central-field'", args.zeta
+        )
     scales = {}
     for item in args.scale or []:
         if "=" not in item:
@@ -615,8 +619,7 @@ def build_parser() -> argparse.ArgumentParser:
                     help="store the ab initio values only; leave the starting values")
     sp.add_argument("--relativistic", action="store_true",
                     help="add mass-velocity and Darwin corrections to E_av")
-    sp.add_argument("--zeta", choices=("blume-watson", "central-field"),
-                    default="blume-watson",
+    sp.add_argument("--zeta", default="blume-watson", metavar="METHOD",
                     help="spin-orbit parameters: Blume-Watson (default) or the central-field "
                          "formula")
     sp.set_defaults(func=cmd_abinitio)

@@ -262,7 +262,9 @@ class Basis:
         self.effective_operators: list[EffectiveOperator] = ops
         self._effective_terms = stack_two_body(parts) if parts else None
 
-    def _effective_matrices(self, V: np.ndarray, L: int, S2: int) -> dict[tuple[int, str], np.ndarray]:
+    def _effective_matrices(
+        self, V: np.ndarray, L: int, S2: int
+    ) -> dict[tuple[int, str], np.ndarray]:
         """V^T O V for every effective operator in the block (M_L = L, 2M_S = 2S)."""
         if not self.effective_operators:
             return {}

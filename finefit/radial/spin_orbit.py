@@ -51,7 +51,10 @@ def _quadrature() -> tuple[np.ndarray, np.ndarray]:
 
 
 def _theta(l: int, m: int, x: np.ndarray) -> np.ndarray:
-    """Theta_lm(x), normalised over x in [-1, 1], Condon & Shortley phase (Y = Theta e^imphi/sqrt 2pi)."""
+    """Theta_lm(x) normalised over x in [-1, 1], Condon & Shortley phase.
+
+    Y_lm = Theta_lm(cos theta) e^(i m phi) / sqrt(2 pi).
+    """
     if abs(m) > l:
         return np.zeros_like(x)
     ma = abs(m)
@@ -71,7 +74,7 @@ def _dtheta(l: int, m: int, x: np.ndarray) -> np.ndarray:
 
 @cache
 def _triple(l1: int, m1: int, l2: int, m2: int, l3: int, m3: int) -> float:
-    """int Theta_1 Theta_2 Theta_3 dx / sqrt(2 pi): a Gaunt integral once the phi selection holds."""
+    """int Theta_1 Theta_2 Theta_3 dx / sqrt(2 pi): a Gaunt integral when the m's add up."""
     x, w = _quadrature()
     v = float(np.sum(w * _theta(l1, m1, x) * _theta(l2, m2, x) * _theta(l3, m3, x)))
     return v / np.sqrt(2.0 * np.pi)
