@@ -153,3 +153,34 @@ def test_hellmann_feynman_of_new_parameters_against_finite_differences():
             fd = (sp.block_solution(b.J2)[0] - sm.block_solution(b.J2)[0]) / (2 * h)
             an = [jac[order[(b.J2, k)], p] for k in range(b.size)]
             assert an == pytest.approx(fd, abs=1e-6)
+
+
+def test_new_operators_keep_the_centre_of_gravity():
+    # CONVENTIONS.md (E_av convention): every operator but E_av is traceless per
+    # configuration, so with one of them alone the (2J+1)-weighted mean energy is 0
+    for cfgs, name in ((["3d6 4s"], "3d6 4s: beta(3d)"), (["4f3"], "4f3: gamma(4f)"),
+                       (["4f3"], "4f3: beta(4f)")):
+        m = Model(cfgs)
+        sol = m.solve({name: 1.0})
+        total = sum((2 * lev.J + 1) * lev.energy for lev in sol.levels)
+        assert abs(total) < 1e-9
+
+
+def test_hellmann_feynman_of_d_shell_beta_with_interaction():
+    model = Model(["3d6 4s", "3d7"])
+    rng = np.random.default_rng(3)
+    x0 = np.array([rng.uniform(100, 5000) for _ in model.parameters])
+    sol = model.solve(x0)
+    jac = sol.jacobian()
+    order = {(lev.block, lev.position): i for i, lev in enumerate(sol.levels)}
+    h = 1e-3
+    for name in ("3d6 4s: beta(3d)", "3d7: beta(3d)"):
+        p = model.parameters.index(name)
+        xp, xm = x0.copy(), x0.copy()
+        xp[p] += h
+        xm[p] -= h
+        sp, sm = model.solve(xp, derivatives=False), model.solve(xm, derivatives=False)
+        for b in model.blocks:
+            fd = (sp.block_solution(b.J2)[0] - sm.block_solution(b.J2)[0]) / (2 * h)
+            an = [jac[order[(b.J2, k)], p] for k in range(b.size)]
+            assert an == pytest.approx(fd, abs=1e-6)
