@@ -21,7 +21,7 @@ in which the spin-same-orbit part counts once and the spin-other-orbit part twic
 X is evaluated here from its definition, without tables: with
 r_12/r_12^3 x p_1 = i grad_1(1/r_12) x grad_1 and the multipole expansion of 1/r_12,
 it becomes radial integrals of P_a, P_b, P_b' and Y^k(P_a P_b) times angular
-integrals done by Gauss-Legendre quadrature (exact for these polynomials).
+integrals done by Gauss-Legendre quadrature (converged to rounding).
 
 Open subshells other than a count with the configuration-average weight
 w_b/(4l_b+2) of a full shell; a's own subshell with (w_a - 1)/(4l_a + 1), so that one
@@ -42,7 +42,7 @@ from finefit.errors import FinefitError
 from finefit.radial.grid import derivative
 from finefit.radial.units import ALPHA, HARTREE_CM
 
-_NODES = 96  # Gauss-Legendre points in cos(theta); exact far beyond the degrees met (l <= 6)
+_NODES = 96  # Gauss-Legendre points in cos(theta); 48 and 192 agree to rounding for 4f
 
 
 @cache
