@@ -24,6 +24,7 @@ from finefit.errors import FinefitError
 from finefit.model.hamiltonian import Model
 
 DEFAULT_SCALES = {"F": 0.85, "G": 0.85, "R": 0.85, "zeta": 1.0}
+EFFECTIVE_KINDS = {"alpha", "beta", "gamma", "T", "M", "P"}
 
 
 @dataclass
@@ -84,7 +85,11 @@ def ab_initio_values(
                 elif spec.kind == "R":
                     value = hf.interaction_parameter(spec.short, runs[cfgs[1]])
                 else:
-                    out.skipped[spec.name] = "no ab initio value for this kind"
+                    out.skipped[spec.name] = (
+                        "an effective operator: it keeps its starting value"
+                        if spec.kind in EFFECTIVE_KINDS
+                        else "no ab initio value for this kind"
+                    )
                     continue
             except FinefitError as exc:
                 out.skipped[spec.name] = str(exc)
