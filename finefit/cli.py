@@ -7,14 +7,13 @@ import json
 import os
 import sys
 from pathlib import Path
-
-import numpy as np
-from rich.console import Console
-from rich.table import Table
-from rich.text import Text
+from typing import TYPE_CHECKING
 
 from finefit.errors import FinefitError
 from finefit.notation.jvalues import format_j
+
+if TYPE_CHECKING:
+    from rich.console import Console
 
 EXIT_OK, EXIT_NOT_CONVERGED, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
 
@@ -24,11 +23,28 @@ CAUTION = (
 )
 
 
+# numpy, rich and the engine are imported when a command runs, not for `--help`
+def Table(*args, **kwargs):  # noqa: N802 - stands in for rich.table.Table
+    from rich.table import Table as _Table
+
+    return _Table(*args, **kwargs)
+
+
+def Text(*args, **kwargs):  # noqa: N802 - stands in for rich.text.Text
+    from rich.text import Text as _Text
+
+    return _Text(*args, **kwargs)
+
+
 def _console(args) -> Console:
+    from rich.console import Console
+
     return Console(no_color=bool(os.environ.get("NO_COLOR")) or getattr(args, "json", False))
 
 
 def _err_console() -> Console:
+    from rich.console import Console
+
     return Console(stderr=True, no_color=bool(os.environ.get("NO_COLOR")))
 
 
@@ -124,12 +140,12 @@ def _print_result(con: Console, s, r, args) -> None:
 
     con.print(tables.summary_text(r))
     con.print(tables.parameter_table(r, s.parameters, width=con.width))
-    con.print(tables.level_table(r, width=con.width))
+    tables.print_table(con, tables.level_table(r, width=con.width))
     corr = tables.correlation_table(r)
     if corr is not None:
         con.print(corr)
     if getattr(args, "predictions", False):
-        con.print(tables.prediction_table(r))
+        tables.print_table(con, tables.prediction_table(r))
     for w in r.warnings:
         con.print(Text("warning: " + w, style="yellow"))
     con.print(Text(CAUTION, style="dim"))
@@ -201,8 +217,10 @@ def cmd_levels(args) -> int:
                     f"{100 * lev.purity:.0f}%",
                     Text("  ".join(f"{100 * c.fraction:.0f}% {c.label}" for c in comps)),
                     f"{lev.g:.4f}")
+    from finefit.reports.tables import print_table
+
     con = _console(args)
-    con.print(tab)
+    print_table(con, tab)
     con.print(Text(CAUTION, style="dim"))
     return EXIT_OK
 
@@ -274,28 +292,66 @@ def _columns(spec: str | None) -> dict[str, str] | None:
 
 
 def cmd_import(args) -> int:
-    from finefit.storage.level_tables import read_levels
+    from finefit.storage.atomic import read_text
+    from finefit.storage.level_tables import is_compilation_table, read_levels
 
     s = _load(args.session)
+    con = _console(args)
+    text = read_text(args.table, "level table")
+    if args.columns is None and args.format is None and is_compilation_table(text):
+        # the compilations' layout, taken as it is
+        if args.replace:
+            s.levels = []
+        rep = s.import_levels(args.table, include_derived=args.use_derived)
+        s.problem()  # validates J counts and labels before anything is written
+        s.save()
+        if args.json:
+            _json(rep.as_dict())
+            return EXIT_OK
+        for line in rep.summary():
+            con.print(line, highlight=False, markup=False)
+        if args.verbose:
+            for ln, why in rep.skipped:
+                con.print(f"  line {ln}: {why}", highlight=False, markup=False)
+            for lid, why in rep.unlabelled:
+                con.print(f"  {lid}: no label ({why})", highlight=False, markup=False)
+        con.print(f"saved {s.path}", highlight=False)
+        return EXIT_OK
     defaults = {}
     if args.parity:
         defaults["parity"] = args.parity
     if args.configuration:
         defaults["configuration"] = args.configuration
+    bad: list[tuple[int, str]] = []
     levels = read_levels(args.table, _columns(args.columns), args.format, defaults,
-                         id_start=1 if args.replace else len(s.levels) + 1)
+                         id_start=1 if args.replace else len(s.levels) + 1,
+                         skip_bad=args.skip_bad, bad_rows=bad)
     if args.replace:
         s.levels = []
     used = {lv.id for lv in s.levels}
+    kept = []
     for lv in levels:
-        if lv.id in used:
-            raise FinefitError(f"{args.table}: level id {lv.id!r} exists in the session", lv.id)
-        s._check_level(lv)
+        try:
+            if lv.id in used:
+                raise FinefitError(f"level id {lv.id!r} exists in the session", lv.id)
+            s._check_level(lv)
+        except FinefitError as exc:
+            if not args.skip_bad:
+                raise FinefitError(f"{args.table}: {exc}", lv.id) from None
+            bad.append((0, f"{lv.id}: {exc}"))
+            continue
         used.add(lv.id)
-    s.levels.extend(levels)
+        kept.append(lv)
+    s.levels.extend(kept)
     s.problem()  # validates J counts and labels before anything is written
     s.save()
-    _console(args).print(f"imported {len(levels)} levels into {s.path}")
+    if args.json:
+        _json({"imported": len(kept), "skipped": [{"line": ln, "reason": r} for ln, r in bad]})
+        return EXIT_OK
+    con.print(f"imported {len(kept)} levels into {s.path}", highlight=False)
+    for ln, why in bad:
+        con.print(f"  skipped{f' line {ln}' if ln else ''}: {why}", highlight=False,
+                  markup=False)
     return EXIT_OK
 
 
@@ -461,6 +517,8 @@ def cmd_lines(args) -> int:
 
 
 def cmd_classify(args) -> int:
+    import numpy as np
+
     from finefit.lines.classify import classify_lines
     from finefit.storage.line_tables import read_lines
 
@@ -727,14 +785,21 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("level", nargs="+")
     sp.set_defaults(func=lambda a: cmd_include(a, False))
 
-    sp = add("import", "read observed levels from a CSV, TSV or whitespace table",
-             json_flag=False)
+    sp = add("import", "read observed levels: a published level list as it is, or a CSV, "
+             "TSV or whitespace table with a column mapping")
     sp.add_argument("table")
-    sp.add_argument("--columns", help="field=column pairs, e.g. 'energy=E,J=Jval,label=desig'")
+    sp.add_argument("--columns", help="field=column pairs, e.g. 'energy=E,J=Jval,label=desig'; "
+                    "'configuration=' switches a column off")
     sp.add_argument("--format", choices=("csv", "tsv", "txt"))
     sp.add_argument("--parity", choices=("even", "odd"), help="parity of levels without one")
     sp.add_argument("--configuration", help="configuration of levels without one")
     sp.add_argument("--replace", action="store_true", help="replace the session's levels")
+    sp.add_argument("--skip-bad", action="store_true",
+                    help="import the good rows of a table with bad ones (each is listed)")
+    sp.add_argument("--use-derived", action="store_true",
+                    help="published lists: fit levels given in brackets (derived, not observed)")
+    sp.add_argument("--verbose", action="store_true",
+                    help="published lists: list every skipped row and unlabelled level")
     sp.set_defaults(func=cmd_import)
 
     sp = add("export", "write the observed levels as a table", json_flag=False)
@@ -754,7 +819,10 @@ def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
-        return int(args.func(args))
+        from finefit.threads import engine_threads
+
+        with engine_threads():
+            return int(args.func(args))
     except FinefitError as exc:
         print(f"finefit: error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT

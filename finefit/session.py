@@ -21,8 +21,10 @@ from finefit.errors import FinefitError
 from finefit.fitting.fit import FitProblem
 from finefit.fitting.results import FitResult
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
+from finefit.model.coupling import coupling_data
 from finefit.model.estimates import default_link, typical_value
 from finefit.model.hamiltonian import Model
+from finefit.model.label_match import LabelTarget, resolve_label
 from finefit.notation.configuration import parse_configuration
 from finefit.notation.jvalues import parse_j
 from finefit.storage.atomic import atomic_write_text, read_text
@@ -33,6 +35,7 @@ from finefit.storage.session_file import (
     dump_session,
     parse_session,
 )
+from finefit.threads import with_engine_threads
 
 # Kinds varied by default in a new session; CI integrals and effective corrections are
 # commonly held fixed at scaled ab initio values until the data can carry them.
@@ -81,6 +84,7 @@ def group_by_parity(configurations: list[str]) -> dict[str, tuple[str, ...]]:
 class Session:
     """Observed levels of one ion and the parametric model fitted to them."""
 
+    @with_engine_threads
     def __init__(
         self, data: SessionData, path: str | Path | None = None, fresh: bool = False
     ) -> None:
@@ -109,7 +113,9 @@ class Session:
                 )
         self.levels: list[ObservedLevel] = []
         for lv in data.levels:
-            self._check_level(lv)
+            # labels are read strictly when they are used (attach, fit) and when edited, so
+            # that a file with a label this version reads differently stays loadable
+            self._check_level(lv, labels=False)
             self.levels.append(lv)
         self.last_result: FitResult | None = None
 
@@ -206,7 +212,7 @@ class Session:
         return {n: s.value for n, s in self.parameters.items()}
 
     # ------------------------------------------------------------------ levels
-    def _check_level(self, lv: ObservedLevel) -> None:
+    def _check_level(self, lv: ObservedLevel, labels: bool = True) -> None:
         if lv.parity not in self.models:
             raise FinefitError(
                 f"level {lv.id}: the session has no {lv.parity} configuration", lv.id
@@ -227,6 +233,39 @@ class Session:
             lv.configuration = c
         if not math.isfinite(lv.energy):
             raise FinefitError(f"level {lv.id}: energy must be finite", lv.id)
+        if labels and lv.label:
+            lv.label = self.resolve_label(lv.label, lv.J, lv.parity, lv.id).text
+        if labels and isinstance(lv.state, str):
+            lv.state = self.resolve_label(lv.state, lv.J, lv.parity, lv.id).text
+
+    def resolve_label(
+        self, label: str, J: float | str, parity: str, level_id: str | None = None
+    ) -> LabelTarget:
+        """The basis state a label names (strict: see :func:`finefit.model.label_match`)."""
+        if parity not in self.models:
+            raise FinefitError(f"the session has no {parity} configuration", parity)
+        model = self.models[parity]
+        try:
+            return resolve_label(coupling_data(model), label, parse_j(J))
+        except FinefitError as exc:
+            if level_id is None:
+                raise
+            raise FinefitError(f"level {level_id}: {exc}", level_id) from None
+
+    def import_levels(self, path: str | Path, include_derived: bool = False):
+        """Import a published level list in the compilations' layout (see DEVELOPERS.md).
+
+        Only levels of the session's configurations are taken; every other row is
+        listed in ``report.skipped`` with its line and reason. Returns the
+        :class:`~finefit.level_import.ImportReport`; the session is changed in place.
+        """
+        from finefit.level_import import import_compilation
+
+        return import_compilation(self, path, include_derived=include_derived)
+
+    def new_level_id(self) -> str:
+        """The next free level id (``L001``, ``L002``, ...)."""
+        return self._new_id()
 
     def _new_id(self) -> str:
         used = {lv.id for lv in self.levels}
@@ -309,9 +348,11 @@ class Session:
         return self.update_level(level_id, state=state)
 
     # ------------------------------------------------------------------ fitting
+    @with_engine_threads
     def problem(self) -> FitProblem:
         return FitProblem(self.models, self.parameters, self.levels, self.options)
 
+    @with_engine_threads
     def fit(
         self,
         should_stop: Callable[[], bool] | None = None,
@@ -322,6 +363,7 @@ class Session:
         self.last_result = result
         return result
 
+    @with_engine_threads
     def report(self) -> FitResult:
         """Observed vs calculated at the current values, without fitting."""
         result = self.problem().report()
@@ -334,6 +376,7 @@ class Session:
             if name in self.parameters:
                 self.parameters[name].value = v
 
+    @with_engine_threads
     def solve(self, parity: str | None = None):
         """Computed levels at the current values (one Solution per parity)."""
         out = {}
@@ -366,6 +409,7 @@ class Session:
                 self.parameters[name].value = res.start[name]
         return res
 
+    @with_engine_threads
     def predict_lines(
         self,
         radial: dict[tuple[str, str], float] | None = None,

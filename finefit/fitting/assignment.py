@@ -11,41 +11,32 @@ not swap when two eigenvalues cross.
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.optimize import linear_sum_assignment
 
 from finefit.errors import FinefitError
 from finefit.fitting.settings import ObservedLevel
+from finefit.model.label_match import resolve_label
 from finefit.notation.jvalues import format_j
-from finefit.notation.labels import normalise_label
 
 
-def _strip_qualifiers(label: str) -> str:
-    """Label without seniority digits/letters after term letters (for loose matching)."""
-    return re.sub(r"([A-Z]°?)\d+[a-z]?(?=[)\s]|$)", r"\1", label)
+def linear_sum_assignment(cost: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """scipy's assignment solver, imported on first use (scipy.optimize loads slowly)."""
+    from scipy.optimize import linear_sum_assignment as solve
+
+    return solve(cost)
 
 
-def match_label(label: str, basis_labels: list[str], J: float) -> int | None:
-    """Row of the LS basis state named by ``label`` (exact, then without qualifiers or J)."""
-    want = normalise_label(label)
-    if want in basis_labels:
-        return basis_labels.index(want)
-    # compact J written at the end, e.g. '3d6(5D)4s 6D9/2'
-    jt = format_j(J)
-    if want.endswith(jt):
-        head = want[: -len(jt)].rstrip("_ ")
-        if head in basis_labels:
-            return basis_labels.index(head)
-        want = head
-    loose = [_strip_qualifiers(b) for b in basis_labels]
-    w = _strip_qualifiers(want)
-    hits = [i for i, b in enumerate(loose) if b == w]
-    if len(hits) >= 1:
-        return hits[0]
-    return None
+
+def label_overlaps(coupling: dict, J2: int, label: str, J: float, vectors: np.ndarray):
+    """The state a label names and its squared overlap with each eigenvector.
+
+    The overlap is taken in the label's own coupling scheme (LS, JK, J1j or jj).
+    """
+    target = resolve_label(coupling, label, J)
+    _, coords = coupling[J2].scheme(target.scheme, vectors)
+    return target, coords[target.row] ** 2
 
 
 @dataclass
@@ -90,7 +81,7 @@ def attach_block(
     levels: list[ObservedLevel],
     energies: np.ndarray,
     vectors: np.ndarray,
-    basis_labels: list[str],
+    coupling: dict,
     state_config: np.ndarray,
     config_names: list[str],
     assignment: str = "energy-order",
@@ -98,6 +89,7 @@ def attach_block(
     """Eigen index for each observed level of one J block, and warnings."""
     n = energies.size
     J = levels[0].J
+    J2 = int(round(2 * J))
     if len(levels) > n:
         raise FinefitError(
             f"{len(levels)} observed levels have J = {format_j(J)} ({levels[0].parity}) but "
@@ -125,13 +117,11 @@ def attach_block(
                 )
             k = lv.state - 1
         else:
-            row = match_label(lv.state, basis_labels, J)
-            if row is None:
-                raise FinefitError(
-                    f"level {lv.id}: state {lv.state!r} names no LS state of J = {format_j(J)}",
-                    lv.id,
-                )
-            k = int(np.argmax(weights[row]))
+            try:
+                _, overlap = label_overlaps(coupling, J2, lv.state, J, vectors)
+            except FinefitError as exc:
+                raise FinefitError(f"level {lv.id}: pinned state: {exc}", lv.id) from None
+            k = int(np.argmax(overlap))
         if taken[k]:
             other = levels[int(np.flatnonzero(result == k)[0])].id
             warnings.append(
@@ -141,22 +131,20 @@ def attach_block(
         result[i] = k
         taken[k] = True
     # 2. labelled levels: joint maximum overlap
-    lab_idx, rows = [], []
+    lab_idx, rows, overlaps = [], [], []
     for i, lv in enumerate(levels):
         if result[i] >= 0 or not lv.label:
             continue
-        row = match_label(lv.label, basis_labels, J)
-        if row is None:
-            raise FinefitError(
-                f"level {lv.id}: label {lv.label!r} names no LS state of J = {format_j(J)} "
-                f"({levels[0].parity}) in this model",
-                lv.id,
-            )
+        try:
+            target, overlap = label_overlaps(coupling, J2, lv.label, J, vectors)
+        except FinefitError as exc:
+            raise FinefitError(f"level {lv.id}: {exc}", lv.id) from None
         lab_idx.append(i)
-        rows.append(row)
+        rows.append((target.scheme, target.row))
+        overlaps.append(overlap)
     if lab_idx:
         free = np.flatnonzero(~taken)
-        cost = -weights[np.ix_(rows, free)]
+        cost = -np.array(overlaps)[:, free]
         r, c = linear_sum_assignment(cost)
         chosen = {lab_idx[a]: int(free[b]) for a, b in zip(r, c, strict=True)}
         # levels sharing one label: the set of states maximises the overlap, the pairing

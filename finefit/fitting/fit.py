@@ -16,16 +16,17 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
-import lmfit
 import numpy as np
 
 from finefit.errors import FinefitError
-from finefit.fitting.assignment import BlockAttachment, attach_block, match_label
+from finefit.fitting.assignment import BlockAttachment, attach_block
 from finefit.fitting.results import FitResult, LevelRow, PredictedLevel
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
 from finefit.model.coupling import coupling_data
-from finefit.model.hamiltonian import Model, _solve_block
+from finefit.model.hamiltonian import Model
+from finefit.model.label_match import leading_row, resolve_label
 from finefit.notation.jvalues import format_j
+from finefit.threads import with_engine_threads
 
 
 class FitCancelled(Exception):
@@ -184,10 +185,10 @@ class FitProblem:
             model = self.models[parity]
             b = next(b for b in model.blocks if b.J2 == j2)
             x = self._model_x(self.x_start, parity)
-            w, V, _ = _solve_block(b, x, False)
-            cd = coupling_data(model)[j2]
+            eig = model.eigen_block(b, x)
+            w, V = eig.energies, eig.vectors
             idx, warns = attach_block(
-                lvs, w, V, cd.ls_labels, b.state_config, model.configurations,
+                lvs, w, V, coupling_data(model), b.state_config, model.configurations,
                 self.options.assignment,
             )
             self.warnings.extend(warns)
@@ -204,9 +205,11 @@ class FitProblem:
             b = next(bb for bb in self.models[parity].blocks if bb.J2 == j2)
             sel = np.array([p for p, lid in enumerate(att.level_ids) if lid in row_of], dtype=int)
             rows = np.array([row_of[att.level_ids[p]] for p in sel], dtype=int)
-            cols = self.offset[parity] + b.param_index
+            # only parameters that enter a variable need derivatives
+            used = np.flatnonzero(self.chain[self.offset[parity] + b.param_index].any(axis=1))
+            cols = self.offset[parity] + b.param_index[used]
             grid = (rows[:, None], cols[None, :])
-            self._plan[key] = (b, rows, sel, grid)
+            self._plan[key] = (b, rows, sel, grid, used)
         self.obs = np.array([lv.energy for lv in self.included])
         u = np.array(
             [lv.uncertainty if lv.uncertainty else self.options.default_uncertainty
@@ -235,30 +238,29 @@ class FitProblem:
         J = np.zeros((len(self.included), len(self.names))) if jacobian else None
         for bkey, att in self.attachments.items():
             parity = bkey[0]
-            b, rows, sel, grid = self._plan[bkey]
+            b, rows, sel, grid, used = self._plan[bkey]
             hit = self._cache.get(bkey)
-            if hit is not None and hit[0] == key and hit[4] is att.reference:
-                w, V, idx = hit[1], hit[2], hit[3]
+            if hit is not None and hit[0] == key and hit[3] is att.reference:
+                eig, idx = hit[1], hit[2]
             else:
-                w, V, _ = _solve_block(b, self._model_x(x, parity), False)
-                idx = att.follow(V) if self.options.follow_eigenvectors else att.eigen_index
-                self._cache[bkey] = (key, w, V, idx, att.reference)
+                eig = self.models[parity].eigen_block(b, self._model_x(x, parity))
+                idx = (att.follow(eig.vectors) if self.options.follow_eigenvectors
+                       else att.eigen_index)
+                self._cache[bkey] = (key, eig, idx, att.reference)
             if commit:
-                att.commit(idx, V)
+                att.commit(idx, eig.vectors)
             if not rows.size:
                 continue
             states = idx[sel]
-            e[rows] = w[states]
-            if jacobian and b.param_index.size:
-                n = b.size
-                Vs = V[:, states]
-                VV = (Vs[:, None, :] * Vs[None, :, :]).reshape(n * n, states.size)
-                J[grid] = (b.C_flat @ VV).T
+            e[rows] = eig.energies[states]
+            if jacobian and used.size:
+                J[grid] = eig.derivatives(states, used)
         if not jacobian:
             return e, None
         return e, J @ self.chain
 
     # ------------------------------------------------------------------ fit
+    @with_engine_threads
     def fit(
         self,
         should_stop: Callable[[], bool] | None = None,
@@ -269,6 +271,8 @@ class FitProblem:
             return self.report(message="nothing to vary: values as given")
         if not self.included:
             raise FinefitError("no observed level is included in the fit", "levels")
+        import lmfit  # imported here: loading it costs about a second (scipy.stats, plotting)
+
         params = lmfit.Parameters()
         for j, var in enumerate(self.variables):
             params.add(f"v{j}", value=float(self.v_start[j]), min=var.min, max=var.max)
@@ -348,7 +352,8 @@ class FitProblem:
         for (parity, j2), att in self.attachments.items():
             model = self.models[parity]
             b = next(bb for bb in model.blocks if bb.J2 == j2)
-            w, V, _ = _solve_block(b, self._model_x(x, parity), False)
+            eig = model.eigen_block(b, self._model_x(x, parity))
+            w, V = eig.energies, eig.vectors
             idx = att.follow(V)
             trial = []
             for pos, lid in enumerate(att.level_ids):
@@ -356,8 +361,7 @@ class FitProblem:
                 if isinstance(lv.state, int) or not (lv.label or lv.state):
                     lv.state = int(idx[pos]) + 1  # keep where the fit took it
                 trial.append(lv)
-            cd = coupling_data(model)[j2]
-            new, _ = attach_block(trial, w, V, cd.ls_labels, b.state_config,
+            new, _ = attach_block(trial, w, V, coupling_data(model), b.state_config,
                                   model.configurations, self.options.assignment)
             changed = [att.level_ids[k] for k in np.flatnonzero(new != idx)]
             if changed:
@@ -517,6 +521,7 @@ class FitProblem:
         for parity, model in self.models.items():
             sol = model.solve(self._model_x(x, parity))
             sols[parity] = sol
+            coupling = coupling_data(model)
             by_pos = {(lev.block, lev.position): lev for lev in sol.levels}
             attached: dict[tuple[int, int], str] = {}
             for (p, j2), att in self.attachments.items():
@@ -538,9 +543,13 @@ class FitProblem:
                 if key in attached:
                     lid = attached[key]
                     obs = lv_by_id[lid]
-                    mismatch = bool(obs.label) and (
-                        match_label(obs.label, [lev.label], obs.J) is None
-                    )
+                    mismatch = False
+                    if obs.label:
+                        target = resolve_label(coupling, obs.label, obs.J)
+                        vec = sol.eigenvector(lev)
+                        mismatch = leading_row(coupling[lev.block], target.scheme, vec) != (
+                            target.row
+                        )
                     rows.append(
                         LevelRow(
                             id=lid, J=lev.J, parity=parity, energy_obs=obs.energy,

@@ -11,6 +11,9 @@ operators and Clebsch-Gordan coefficients. Everything is exact up to rounding.
 
 from __future__ import annotations
 
+import itertools
+import os
+from collections import Counter
 from dataclasses import dataclass, field
 from math import comb
 
@@ -38,20 +41,105 @@ from finefit.angular.operators import (
 from finefit.angular.wigner import clebsch_gordan2
 from finefit.errors import FinefitError
 from finefit.notation.configuration import Configuration, parse_configuration
+from finefit.notation.terms import subshell_term_counts
 
 # Running indices of repeated terms of equal seniority are ordered by the energy of
 # this reference electrostatic operator of the subshell (weights of F^k, k = 2, 4, 6).
 TIE_BREAK_WEIGHTS = {2: 1.0, 4: 0.25, 6: 1.0 / 9.0, 8: 1.0 / 16.0, 10: 1.0 / 25.0, 12: 1.0 / 36.0}
 
 
+# Default ceiling of the size guard (GiB); FINEFIT_MEMORY_LIMIT_GB overrides it.
+DEFAULT_MEMORY_LIMIT_GB = 4.0
+
+
+@dataclass(frozen=True)
+class SizeEstimate:
+    """What building a configuration set will take, known before anything is built.
+
+    The memory counts the dense highest-weight problem of the largest (M_L, M_S)
+    block of one configuration (the matrix, its eigenvectors and LAPACK's
+    divide-and-conquer workspace of about 2 n^2 more, dsyevd documentation: 4 n^2
+    doubles) plus, per J, the exact-J vectors (determinants with M_J = J times the
+    number of levels) and about 16 coefficient matrices of the levels (common
+    practice for a rough figure).
+    """
+
+    n_determinants: int
+    largest_block: int  # determinants of one configuration in one (M_L >= 0, 2M_S >= 0) block
+    memory_bytes: int
+
+    def describe(self) -> str:
+        return (f"{self.n_determinants} determinants, largest block {self.largest_block} "
+                f"determinants, about {self.memory_bytes / 2**30:.2f} GiB of memory")
+
+
+def memory_limit_gb() -> float:
+    """The size guard's limit: ``FINEFIT_MEMORY_LIMIT_GB`` if set to a positive number."""
+    text = os.environ.get("FINEFIT_MEMORY_LIMIT_GB", "").strip()
+    try:
+        value = float(text)
+    except ValueError:
+        return DEFAULT_MEMORY_LIMIT_GB
+    return value if value > 0 else DEFAULT_MEMORY_LIMIT_GB
+
+
+def _shell_counts(l: int, n_el: int) -> Counter:
+    """Number of determinants of l^N per (M_L, 2M_S)."""
+    orbitals = [(ml, ms2) for ml in range(-l, l + 1) for ms2 in (1, -1)]
+    return Counter(
+        (sum(o[0] for o in c), sum(o[1] for o in c))
+        for c in itertools.combinations(orbitals, n_el)
+    )
+
+
+def estimate_size(
+    shells: list[tuple[int, int]], occupancies: list[tuple[int, ...]]
+) -> SizeEstimate:
+    """Determinants, largest block and peak memory of a set (per-subshell counts convolved)."""
+    total, largest = 0, 0
+    per_mj: Counter = Counter()  # determinants per 2M_J over the whole set
+    for occ in occupancies:
+        counts = Counter({(0, 0): 1})
+        n_det = 1
+        for (_, l), k in zip(shells, occ, strict=True):
+            n_det *= comb(4 * l + 2, k)
+            if k in (0, 4 * l + 2):
+                continue
+            part = _shell_counts(l, k)
+            new: Counter = Counter()
+            for (a, b), x in counts.items():
+                for (c, d), y in part.items():
+                    new[(a + c, b + d)] += x * y
+            counts = new
+        total += n_det
+        largest = max([largest] + [x for (ml, ms2), x in counts.items() if ml >= 0 and ms2 >= 0])
+        for (ml, ms2), x in counts.items():
+            per_mj[2 * ml + ms2] += x
+    doubles = 4 * largest * largest
+    for mj2, n_mj in per_mj.items():
+        if mj2 >= 0:
+            levels = n_mj - per_mj.get(mj2 + 2, 0)  # states of J = M_J
+            doubles += n_mj * levels + 16 * levels * levels
+    return SizeEstimate(total, largest, 8 * doubles)
+
+
 @dataclass(frozen=True)
 class SubshellTerm:
-    """The term of one open subshell: L, 2S, seniority v and a running index (0 = unique)."""
+    """The term of one open subshell: L, 2S, seniority v and its repeated-term index.
+
+    ``index`` is the index the level compilations give a term that occurs more than
+    once in l^N (Nielson & Koster 1963): the copies of one LS term numbered 1, 2, ...
+    in the order of seniority v, then (f shells) Racah's SO(7) label W, then the G2
+    label U; 0 for a term that occurs once. ``w`` and ``u`` are Racah's labels
+    (empty where they were not needed to tell copies apart).
+    """
 
     L: int
     S2: int
     seniority: int
     index: int = 0
+    w: tuple[int, ...] = ()
+    u: tuple[int, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -188,6 +276,15 @@ class Basis:
                 n_det *= comb(4 * l + 2, k)
             infos.append(ConfigurationInfo(i, c, texts[i], occ, open_shells, n_det))
         self.configs: list[ConfigurationInfo] = infos
+        self.size = estimate_size(self.shells, [c.occupancy for c in infos])
+        limit = memory_limit_gb()
+        if self.size.memory_bytes > limit * 2**30:
+            raise FinefitError(
+                f"{' + '.join(texts)} is too large to build: {self.size.describe()}, above "
+                f"the limit of {limit:g} GiB (set FINEFIT_MEMORY_LIMIT_GB to raise it, or "
+                "remove a configuration or subshell)",
+                "configurations",
+            )
         self._build_blocks()
         self._coulomb_terms, self.integral_classes = coulomb_terms(self.spin_orbitals)
         self._lplus = lplus_terms(self.spin_orbitals, list(range(len(self.shells))))
@@ -397,12 +494,44 @@ class Basis:
                         new_groups.append(g[start:i])
                         start = i
             groups = new_groups
-        qn = {(k, p): np.einsum("ij,jk,ki->i", R.T, op, R) for k, p, op in ops}
+        # f shells: copies of a term with equal seniority are told apart by Racah's SO(7)
+        # and G2 labels W and U (only built where such copies remain degenerate)
+        if any(g.size > 1 for g in groups):
+            for pos, s in enumerate(shells):
+                l = self.shells[s][1]
+                if l != 3 or info.occupancy[s] in (1, 4 * l + 1):
+                    continue
+                for kind, group in (("W", "SO"), ("U", "G2")):
+                    key = (s, group)
+                    if key not in pairing_cache:
+                        pairing_cache[key] = subshell_casimir_terms(so, s, group)
+                    one, two = pairing_cache[key]
+                    blk = self.block(L, S2)
+                    M = two_body(blk, two)[0] + one_body(blk, blk, one)
+                    op = V.T @ (M @ V)
+                    ops.append((kind, pos, op))
+                    new_groups = []
+                    for g in groups:
+                        if g.size == 1:
+                            new_groups.append(g)
+                            continue
+                        sub = R[:, g].T @ op @ R[:, g]
+                        w, U = np.linalg.eigh((sub + sub.T) / 2)
+                        R[:, g] = R[:, g] @ U
+                        start = 0
+                        for i in range(1, g.size + 1):
+                            if i == g.size or w[i] - w[i - 1] > 1e-6:
+                                new_groups.append(g[start:i])
+                                start = i
+                    groups = new_groups
+        # diagonal of R^T op R as one matrix product (a three-operand einsum is ~10x slower)
+        qn = {(k, p): np.sum(R * (op @ R), axis=0) for k, p, op in ops}
         index_of = np.zeros(n, dtype=int)
         for g in groups:
             if g.size == 1:
                 continue
-            # repeated terms of equal seniority: order by the reference electrostatic operator
+            # copies still degenerate (f shells beyond what v, W, U separate): order them by
+            # the reference electrostatic operator of the subshell
             tie = np.zeros((n, n))
             for pos, s in enumerate(shells):
                 for cls_i, cls in enumerate(self.integral_classes):
@@ -417,37 +546,47 @@ class Basis:
             R[:, g] = R[:, g] @ U
             index_of[g] = np.arange(1, g.size + 1)
         Vout = V @ R
+        caps = [4 * self.shells[s][1] + 2 for s in shells]
+        repeated = [
+            p for p, s in enumerate(shells) if info.occupancy[s] not in (1, caps[p] - 1)
+        ]
+        tie_pos = repeated[0] if repeated else 0
+        raw = []  # per state: per position (L, 2S, v, W, U, tie rank)
+        for i in range(n):
+            terms = []
+            for pos, s in enumerate(shells):
+                l = self.shells[s][1]
+                n_el = info.occupancy[s]
+                if n_el in (1, 4 * l + 1):
+                    terms.append((l, 1, 1, (), (), 0))
+                    continue
+                Ls = _casimir_value(qn[("L", pos)][i])
+                S2s = _casimir_value2(qn[("S", pos)][i])
+                v = _seniority(qn[("v", pos)][i], l, n_el) if l >= 2 else _p_seniority(Ls, S2s)
+                w = _r7_label(qn[("W", pos)][i]) if ("W", pos) in qn else ()
+                u = _g2_label(qn[("U", pos)][i]) if ("U", pos) in qn else ()
+                terms.append((Ls, S2s, v, w, u, int(index_of[i]) if pos == tie_pos else 0))
+            raw.append(terms)
         labels = []
         for i in range(n):
             terms, inter = [], []
             for pos, s in enumerate(shells):
                 l = self.shells[s][1]
                 n_el = info.occupancy[s]
-                if n_el in (1, 4 * l + 1):
-                    terms.append(SubshellTerm(l, 1, 1, 0))
-                    continue
-                Ls = _casimir_value(qn[("L", pos)][i])
-                S2s = _casimir_value2(qn[("S", pos)][i])
-                v = _seniority(qn[("v", pos)][i], l, n_el) if l >= 2 else _p_seniority(Ls, S2s)
-                terms.append(SubshellTerm(Ls, S2s, v, 0))
+                Ls, S2s, v, w, u, tie_rank = raw[i][pos]
+                index = 0
+                if n_el not in (1, 4 * l + 1) and subshell_term_counts(l, n_el)[(Ls, S2s)] > 1:
+                    # the copies of this subshell term all occur in this block (their coupling
+                    # to the rest depends only on L and S): rank among them
+                    keys = sorted(
+                        {raw[j][pos][2:] for j in range(n) if raw[j][pos][:2] == (Ls, S2s)}
+                    )
+                    index = keys.index(raw[i][pos][2:]) + 1
+                terms.append(SubshellTerm(Ls, S2s, v, index, w, u))
             for pos in range(1, len(shells) - 1):
                 inter.append(
                     (_casimir_value(qn[("Lc", pos)][i]), _casimir_value2(qn[("Sc", pos)][i]))
                 )
-            if index_of[i]:
-                # the running index belongs to the subshell whose term repeats; with one
-                # open subshell that is the only one, otherwise the first non-unique one
-                pos = next(
-                    (
-                        p
-                        for p, s in enumerate(shells)
-                        if info.occupancy[s] not in (1, 4 * self.shells[s][1] + 1)
-                    ),
-                    0,
-                )
-                if terms:
-                    t = terms[pos]
-                    terms[pos] = SubshellTerm(t.L, t.S2, t.seniority, int(index_of[i]))
             labels.append(LSState(info.index, tuple(terms), tuple(inter), L, S2))
         return Vout, labels
 
@@ -533,6 +672,34 @@ class Basis:
     def integral_class_name(self, cls: IntegralClass) -> str:
         n = self.shell_names
         return f"R{cls.k}({n[cls.pair1[0]]}{n[cls.pair1[1]]};{n[cls.pair2[0]]}{n[cls.pair2[1]]})"
+
+
+def _lookup(x: float, table: dict[tuple[int, ...], float], what: str) -> tuple[int, ...]:
+    for label, value in table.items():
+        if abs(value - x) < 1e-6:
+            return label
+    raise FinefitError(f"no {what} label has Casimir eigenvalue {x:.6f}", what)  # never expected
+
+
+# Casimir eigenvalues of the SO(7) and G2 irreducible representations of f^N
+# (CONVENTIONS.md; Racah 1949, Phys. Rev. 76, 1352; Wybourne 1965)
+_R7 = {
+    w: (w[0] * (w[0] + 5) + w[1] * (w[1] + 3) + w[2] * (w[2] + 1)) / 10.0
+    for w in [(0, 0, 0), (1, 0, 0), (1, 1, 0), (2, 0, 0), (1, 1, 1), (2, 1, 0), (2, 1, 1),
+              (2, 2, 0), (2, 2, 1), (2, 2, 2)]
+}
+_G2 = {
+    u: (u[0] ** 2 + u[0] * u[1] + u[1] ** 2 + 5 * u[0] + 4 * u[1]) / 12.0
+    for u in [(0, 0), (1, 0), (1, 1), (2, 0), (2, 1), (2, 2), (3, 0), (3, 1), (4, 0)]
+}
+
+
+def _r7_label(x: float) -> tuple[int, ...]:
+    return _lookup(x, _R7, "SO(7)")
+
+
+def _g2_label(x: float) -> tuple[int, ...]:
+    return _lookup(x, _G2, "G2")
 
 
 def _casimir_value(x: float) -> int:

@@ -30,6 +30,7 @@ from finefit.model.parameters import (
 )
 from finefit.notation.configuration import Configuration
 from finefit.notation.jvalues import format_j, parse_j
+from finefit.threads import with_engine_threads
 
 _ZERO = 1e-10
 
@@ -46,6 +47,24 @@ class OperatorBlock:
 
     def __post_init__(self) -> None:
         self.C_flat = self.C.reshape(self.C.shape[0], -1)
+        self._packed: dict = {}
+
+    def packed(self, params: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Upper triangles of the (symmetric) C_p of ``params`` (positions in param_index).
+
+        Returns (P, rows, cols): P[k] holds C_p[rows, cols] with off-diagonal elements
+        doubled, so that v^T C_p v = P[k] @ (v[rows] * v[cols]) with half the products.
+        Cached per parameter selection.
+        """
+        key = None if params is None else tuple(int(i) for i in params)
+        hit = self._packed.get(key)
+        if hit is None:
+            rows, cols = np.triu_indices(self.size)
+            C = self.C if params is None else self.C[np.asarray(params, dtype=np.int64)]
+            P = np.ascontiguousarray(C[:, rows, cols] * np.where(rows == cols, 1.0, 2.0))
+            hit = (P, rows, cols)
+            self._packed[key] = hit
+        return hit
 
     @property
     def J(self) -> float:
@@ -63,6 +82,7 @@ class Model:
     >>> sol = model.solve({"3d2: F2(3d)": 45000.0, "3d2: zeta(3d)": 300.0})
     """
 
+    @with_engine_threads
     def __init__(
         self,
         configurations: list[str | Configuration] | str,
@@ -352,6 +372,7 @@ class Model:
         x = self.vector(values)
         return (x[b.param_index] @ b.C_flat).reshape(b.size, b.size)
 
+    @with_engine_threads
     def solve(self, values: Mapping[str, float] | np.ndarray, derivatives: bool = True):
         """Eigen-solution of every J block; see :class:`finefit.model.solution.Solution`."""
         from finefit.model.solution import Solution
@@ -359,9 +380,25 @@ class Model:
         x = self.vector(values)
         eig = []
         for b in self.blocks:
-            w, V, D = _solve_block(b, x, derivatives)
-            eig.append((w, V, D))
+            e = self.eigen_block(b, x)
+            eig.append((e.energies, e.vectors, e.derivatives() if derivatives else None))
         return Solution(self, x, eig)
+
+    def eigen_block(self, block: OperatorBlock | int, x: np.ndarray) -> BlockEigen:
+        """Energies and eigenvectors of one J block (``block`` or its 2J) at the vector ``x``.
+
+        The one solve of the engine: the fit, :meth:`solve` and the benchmarks call it;
+        derivatives of requested states follow from :meth:`BlockEigen.derivatives`.
+        """
+        b = block if isinstance(block, OperatorBlock) else self._block_of_j2[block]
+        n = b.size
+        H = (x[b.param_index] @ b.C_flat).reshape(n, n)
+        w, V = np.linalg.eigh(H)
+        return BlockEigen(b, w, V)
+
+    def eigen(self, x: np.ndarray) -> list[BlockEigen]:
+        """:meth:`eigen_block` of every J block, in ``blocks`` order."""
+        return [self.eigen_block(b, x) for b in self.blocks]
 
     def energies_and_jacobian(
         self, x: np.ndarray
@@ -370,25 +407,34 @@ class Model:
 
         The derivative block D[i, k] is dE_i/dx_{param_index[k]}.
         """
-        ws, vs, ds = [], [], []
-        for b in self.blocks:
-            w, V, D = _solve_block(b, x, True)
-            ws.append(w)
-            vs.append(V)
-            ds.append(D)
-        return ws, vs, ds
+        eig = self.eigen(x)
+        return ([e.energies for e in eig], [e.vectors for e in eig],
+                [e.derivatives() for e in eig])
 
 
-def _solve_block(b: OperatorBlock, x: np.ndarray, derivatives: bool):
-    n = b.size
-    H = (x[b.param_index] @ b.C_flat).reshape(n, n)
-    w, V = np.linalg.eigh(H)
-    if not derivatives:
-        return w, V, None
-    if n <= 64:
-        # dE_i/dx_p = sum_jk V_ji C_pjk V_ki as one product with the outer products (small
-        # blocks: fewer numpy calls matter more than flops)
-        VV = (V[:, None, :] * V[None, :, :]).reshape(n * n, n)
-        return w, V, (b.C_flat @ VV).T
-    CV = b.C @ V
-    return w, V, np.einsum("ji,pji->ip", V, CV)
+@dataclass(eq=False)
+class BlockEigen:
+    """Eigen-solution of one J block: ascending energies, eigenvectors as columns (LS basis)."""
+
+    block: OperatorBlock
+    energies: np.ndarray
+    vectors: np.ndarray
+
+    def derivatives(
+        self, states: np.ndarray | None = None, params: np.ndarray | None = None
+    ) -> np.ndarray:
+        """dE_i/dx_p = v_i^T C_p v_i (Hellmann-Feynman) of the given eigenstates (default all).
+
+        Rows follow ``states``; columns follow ``params``, positions in the block's
+        ``param_index`` (default all of them).
+        """
+        b = self.block
+        V = self.vectors if states is None else self.vectors[:, states]
+        if b.size <= 64:
+            # one product with the pair products of the vector components over the upper
+            # triangle (small blocks: fewer numpy calls matter more than flops)
+            P, rows, cols = b.packed(params)
+            return (P @ (V[rows] * V[cols])).T
+        C = b.C if params is None else b.C[params]
+        CV = C @ V  # (params, n, states)
+        return np.einsum("jk,pjk->kp", V, CV)

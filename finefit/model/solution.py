@@ -87,6 +87,11 @@ class Solution:
                 )
         levels.sort(key=lambda lev: (lev.energy, lev.J))
         self.levels: list[Level] = levels
+        self._pos = {b.J2: i for i, b in enumerate(model.blocks)}
+        # per (block position, scheme): squared amplitudes of all levels, their maxima
+        # and the order of components (computed once per block, vectorised)
+        self._frac: dict[tuple[int, str], np.ndarray] = {}
+        self._lead: dict[tuple[int, str], np.ndarray] = {}
 
     # ---------------------------------------------------------------- per level
     def eigenvector(self, level: Level) -> np.ndarray:
@@ -94,7 +99,7 @@ class Solution:
         return self._eig[self._block_pos(level)][1][:, level.position]
 
     def _block_pos(self, level: Level) -> int:
-        return next(i for i, b in enumerate(self.model.blocks) if b.J2 == level.block)
+        return self._pos[level.block]
 
     def gradient(self, level: Level) -> np.ndarray:
         """dE/dx_p for every parameter of the model (Hellmann-Feynman)."""
@@ -106,26 +111,49 @@ class Solution:
             out[b.param_index] = D[level.position]
         return out
 
+    def _fractions(self, i: int, scheme: str) -> np.ndarray:
+        """Squared amplitudes of every level of block ``i`` in a scheme (column = level)."""
+        key = scheme.lower()
+        key = "jk" if key == "pair" else key
+        frac = self._frac.get((i, key))
+        if frac is None:
+            _, U = self._coupling[self.model.blocks[i].J2].scheme_basis(scheme)
+            V = self._eig[i][1]
+            amp = V if U is None else U.T @ V
+            frac = amp * amp
+            self._frac[(i, key)] = frac
+            self._lead[(i, key)] = frac.max(axis=0)
+        return frac
+
     def composition(
         self, level: Level, scheme: str = "LS", top: int | None = None
     ) -> list[Component]:
         """Percentage composition of a level in ``LS``, ``jj`` or ``JK`` coupling, largest first."""
+        i = self._block_pos(level)
         cd = self._coupling[level.block]
-        v = self.eigenvector(level)
-        labels, amplitudes = cd.scheme(scheme, v)
-        frac = amplitudes**2
-        order = np.argsort(-frac, kind="stable")
-        if top is not None:
-            order = order[:top]
-        b = self.model.blocks[self._block_pos(level)]
-        cfgs = cd.scheme_configs(scheme, b)
+        labels, _ = cd.scheme_basis(scheme)
+        frac = self._fractions(i, scheme)[:, level.position]
+        if top is not None and top < frac.size:
+            # the top components only: partition, then sort those few (stable by row)
+            part = np.argpartition(-frac, top - 1)[:top]
+            cut = frac[part].min()
+            cand = np.flatnonzero(frac >= cut)
+            order = cand[np.argsort(-frac[cand], kind="stable")][:top]
+        else:
+            order = np.argsort(-frac, kind="stable")
+        cfgs = cd.state_config
         return [
             Component(labels[k], float(frac[k]), self.model.configurations[int(cfgs[k])])
             for k in order
         ]
 
     def purity(self, level: Level, scheme: str) -> float:
-        return self.composition(level, scheme, top=1)[0].fraction
+        """The leading fraction of a level in a scheme."""
+        i = self._block_pos(level)
+        key = scheme.lower()
+        key = "jk" if key == "pair" else key
+        self._fractions(i, scheme)
+        return float(self._lead[(i, key)][level.position])
 
     def best_scheme(self, level: Level) -> str:
         """The coupling scheme whose leading component is largest (ties favour LS)."""
@@ -148,5 +176,4 @@ class Solution:
         return np.array([self.gradient(lev) for lev in self.levels])
 
     def block_solution(self, J2: int) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
-        i = next(i for i, b in enumerate(self.model.blocks) if b.J2 == J2)
-        return self._eig[i]
+        return self._eig[self._pos[J2]]

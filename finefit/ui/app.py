@@ -27,6 +27,7 @@ from finefit.fitting.fit import FitCancelled
 from finefit.fitting.results import FitResult
 from finefit.notation.jvalues import format_j
 from finefit.session import Session
+from finefit.threads import engine_threads
 from finefit.ui import pictures
 from finefit.ui.commands import COMMANDS
 from finefit.ui.screens import ChoiceScreen, FormScreen, HelpScreen, PickScreen
@@ -183,7 +184,8 @@ class WorkspaceApp(App):
     def _fit_worker(self, problem, generation: int) -> None:
         worker = get_current_worker()
         try:
-            result = problem.fit(should_stop=lambda: worker.is_cancelled)
+            with engine_threads():  # one BLAS thread for the small blocks (finefit.threads)
+                result = problem.fit(should_stop=lambda: worker.is_cancelled)
         except FitCancelled:
             return
         except Exception as exc:  # noqa: BLE001 - shown in the status line, never a crash
