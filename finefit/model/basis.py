@@ -357,16 +357,23 @@ class Basis:
                     parts.append(two)
                     ops.append(EffectiveOperator(s, name, name, 0, 2, tuple(one), len(parts) - 1))
         self.effective_operators: list[EffectiveOperator] = ops
-        self._effective_terms = stack_two_body(parts) if parts else None
+        # one sweep per block for the Coulomb and the effective two-body terms: they act on
+        # (nearly) the same spin-orbital quadruples, so the stacked list costs about as
+        # much as the Coulomb terms alone
+        self._n_coulomb = len(self.integral_classes)
+        self._block_terms = (
+            stack_two_body([self._coulomb_terms, stack_two_body(parts)])
+            if parts
+            else self._coulomb_terms
+        )
 
     def _effective_matrices(
-        self, V: np.ndarray, L: int, S2: int
+        self, V: np.ndarray, L: int, S2: int, two: list
     ) -> dict[tuple[int, str], np.ndarray]:
-        """V^T O V for every effective operator in the block (M_L = L, 2M_S = 2S)."""
+        """V^T O V for every effective operator in the block (M_L = L, 2M_S = 2S); ``two``
+        are the block matrices of the stacked effective two-body terms."""
         if not self.effective_operators:
             return {}
-        blk = self.block(L, S2)
-        two = two_body(blk, self._effective_terms) if self._effective_terms is not None else []
         out = {}
         for op in self.effective_operators:
             m = two[op.column] if op.column >= 0 else None
@@ -436,7 +443,8 @@ class Basis:
                 V = np.zeros((blk.size, n_c))
                 V[cols] = U[:, :n_c]
                 if coul is None:
-                    coul = two_body(blk, self._coulomb_terms)
+                    both = two_body(blk, self._block_terms)
+                    coul, eff = both[: self._n_coulomb], both[self._n_coulomb :]
                 V, labels = self._label(info, V, L, S2, coul, pairing_cache)
                 vectors.append(V)
                 states.extend(labels)
@@ -449,7 +457,7 @@ class Basis:
             for info in self.configs:
                 for s in info.open_shells:
                     group.casimir_l[(info.index, s)] = self._casimir_l(Vall, L, S2, (s,))
-            group.effective = self._effective_matrices(Vall, L, S2)
+            group.effective = self._effective_matrices(Vall, L, S2, eff)
             self.term_groups[(L, S2)] = group
             for i, st in enumerate(states):
                 self.ls_states.append(st)
