@@ -25,6 +25,7 @@ from finefit.model.coupling import coupling_data
 from finefit.model.estimates import default_link, typical_value
 from finefit.model.hamiltonian import Model
 from finefit.model.label_match import LabelTarget, resolve_label
+from finefit.model.parameters import ParameterSpec
 from finefit.notation.configuration import parse_configuration
 from finefit.notation.jvalues import parse_j
 from finefit.storage.atomic import atomic_write_text, read_text
@@ -47,7 +48,7 @@ DEFAULT_VARY = {"Eav", "F", "G", "zeta"}
 DEFAULT_VARY_DF = {"alpha", "beta", "gamma"}
 
 
-def default_setting(spec, config: str, fresh: bool) -> ParameterSetting:
+def default_setting(spec: ParameterSpec, config: str, fresh: bool) -> ParameterSetting:
     """Setting of a parameter that the session does not list yet.
 
     ``fresh`` (a new session): the vary flags above, typical values of the effective

@@ -34,13 +34,17 @@ from __future__ import annotations
 
 from functools import cache
 from math import factorial
+from typing import TYPE_CHECKING
 
 import numpy as np
 from scipy.special import lpmv
 
 from finefit.errors import FinefitError
-from finefit.radial.grid import derivative
+from finefit.radial.grid import RadialGrid, derivative
 from finefit.radial.units import ALPHA, HARTREE_CM
+
+if TYPE_CHECKING:
+    from finefit.radial.result import HartreeFockResult
 
 _NODES = 96  # Gauss-Legendre points in cos(theta); 48 and 192 agree to rounding for 4f
 
@@ -96,7 +100,7 @@ def _angular(la: int, ma: int, k: int, q: int, lc: int, mc: int) -> tuple[float,
 
 
 def orbit_field_integral(
-    grid, pa: np.ndarray, la: int, pc: np.ndarray, lc: int, mc: int,
+    grid: RadialGrid, pa: np.ndarray, la: int, pc: np.ndarray, lc: int, mc: int,
     pd: np.ndarray, ld: int, md: int, pe: np.ndarray, le: int, me: int,
 ) -> float:
     """<a(1) d(2)| [r_12 x p_1]_z / r_12^3 |c(1) e(2)> for m_a = l_a (hartree, real orbitals P).
@@ -127,7 +131,9 @@ def orbit_field_integral(
     return total
 
 
-def closed_shell_exchange(grid, pa: np.ndarray, la: int, pb: np.ndarray, lb: int) -> float:
+def closed_shell_exchange(
+    grid: RadialGrid, pa: np.ndarray, la: int, pb: np.ndarray, lb: int
+) -> float:
     """X(a, b): the exchange orbit-field integral summed over a full subshell b (hartree)."""
     return sum(
         orbit_field_integral(grid, pa, la, pb, lb, mb, pb, lb, mb, pa, la, la)
@@ -135,7 +141,9 @@ def closed_shell_exchange(grid, pa: np.ndarray, la: int, pb: np.ndarray, lb: int
     )
 
 
-def closed_shell_direct(grid, pa: np.ndarray, la: int, pb: np.ndarray, lb: int) -> float:
+def closed_shell_direct(
+    grid: RadialGrid, pa: np.ndarray, la: int, pb: np.ndarray, lb: int
+) -> float:
     """The direct analogue of :func:`closed_shell_exchange` (one spin of a full subshell b):
     by Gauss's law it is (2l_b+1) l_a int P_a^2 Q_b(r)/r^3 dr, which tests the machinery."""
     return sum(
@@ -144,7 +152,9 @@ def closed_shell_direct(grid, pa: np.ndarray, la: int, pb: np.ndarray, lb: int) 
     )
 
 
-def blume_watson_zeta(result, orbital: str, unit: str = "cm-1", screened: bool = True) -> float:
+def blume_watson_zeta(
+    result: HartreeFockResult, orbital: str, unit: str = "cm-1", screened: bool = True
+) -> float:
     """Blume-Watson zeta of ``orbital`` from a Hartree-Fock result (cm^-1 or ``"hartree"``).
 
     Nuclear term, direct screening by all other electrons, and exchange with the closed
