@@ -588,6 +588,7 @@ class FitProblem:
         except np.linalg.LinAlgError:
             return v, converged, message
         chi2 = self._chi2(v)
+        sigma_here = self._sigma_of(v)
         for j, name in enumerate(names):
             if kinds.get(name) != "zeta":
                 continue
@@ -606,20 +607,21 @@ class FitProblem:
             finally:
                 self.x_start = x_save
             chi2_2 = self._chi2(v2)
+            sigma_2 = self._sigma_of(v2)
             if conv2 and chi2_2 < chi2 * (1 - 1e-6) - 1e-12:
                 self.diagnoses.append(
                     f"{name}: the start with the opposite sign reached a lower minimum "
-                    f"({self._sigma_of(v):.4g} -> {self._sigma_of(v2):.4g} cm-1), kept"
+                    f"({sigma_here:.4g} -> {sigma_2:.4g} cm-1), kept"
                 )
-                v, chi2 = v2, chi2_2
+                v, chi2, sigma_here = v2, chi2_2, sigma_2
                 continue
             if conv2 and abs(v2[j] - v[j]) > 2 * max(err[j], 1e-9) and np.sign(v2[j]) != np.sign(
                 v[j]
             ):
                 self.diagnoses.append(
                     f"{name}: a second minimum with the opposite sign ({v2[j]:.4g}) at sigma "
-                    f"{self._sigma_of(v2):.4g} cm-1 (this one: {v[j]:.4g} at "
-                    f"{self._sigma_of(v):.4g}); the data leave its sign open"
+                    f"{sigma_2:.4g} cm-1 (this one: {v[j]:.4g} at {sigma_here:.4g}); the "
+                    "data leave its sign open"
                 )
             self._restore(base)
         self.evaluate(v, jacobian=False, commit=True)
@@ -715,7 +717,7 @@ class FitProblem:
             if fitted and self.options.follow_eigenvectors
             else True
         )
-        if fitted and not fixed_point:
+        if fitted and not fixed_point and converged:
             converged = False
             message = "the attachment is not a fixed point at the fitted values"
         if fitted and not converged:

@@ -351,8 +351,9 @@ class Model:
             return values.astype(float)
         x = np.zeros(len(self.parameters))
         for name, val in values.items():
+            i = self.index(name)
             try:
-                x[self.index(name)] = float(val)
+                x[i] = float(val)
             except (TypeError, ValueError):
                 raise FinefitError(f"value of {name!r} is not a number: {val!r}", name) from None
         if not np.all(np.isfinite(x)):
