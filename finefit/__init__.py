@@ -33,6 +33,7 @@ _LAZY = {
     "hydrogenic": "finefit.radial",
     "Session": "finefit.session",
     "load": "finefit.session",
+    "optimise_levels": "finefit.session",
 }
 
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
@@ -47,7 +48,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
         hartree_fock,
         hydrogenic,
     )
-    from finefit.session import Session, load
+    from finefit.session import Session, load, optimise_levels
 
 
 def __getattr__(name: str):
@@ -77,6 +78,7 @@ __all__ = [
     "Session",
     "Solution",
     "load",
+    "optimise_levels",
     "hydrogenic_zeta",
     "lande_zeta",
 ]

@@ -148,6 +148,10 @@ def _print_result(con: Console, s, r, args) -> None:
         tables.print_table(con, tables.prediction_table(r))
     for w in r.warnings:
         con.print(Text("warning: " + w, style="yellow"))
+    if r.next_steps:
+        con.print(Text("What to check next:", style="bold"))
+        for step in r.next_steps:
+            con.print(Text("  - " + step))
     con.print(Text(CAUTION, style="dim"))
 
 
@@ -164,7 +168,16 @@ def cmd_fit(args) -> int:
         def progress(it: int, rms: float) -> None:
             prog.update(task, description=f"fitting: evaluation {it}, rms {rms:.3f} cm-1")
 
-        r = s.fit(progress=progress)
+        r = s.fit(progress=progress, starts=args.starts, seed=args.seed)
+    if (args.write or args.keep) and not r.converged and not args.force:
+        if args.json:
+            _json(r.to_dict())
+        else:
+            _print_result(con, s, r, args)
+        raise FinefitError(
+            "the fit did not converge: nothing written (give --force to store it anyway)",
+            "--write" if args.write else "--keep",
+        )
     if args.write:
         s.apply(r)
     if args.keep:
@@ -292,28 +305,66 @@ def _columns(spec: str | None) -> dict[str, str] | None:
 
 
 def cmd_import(args) -> int:
-    from finefit.storage.level_tables import read_levels
+    from finefit.storage.atomic import read_text
+    from finefit.storage.level_tables import is_compilation_table, read_levels
 
     s = _load(args.session)
+    con = _console(args)
+    text = read_text(args.table, "level table")
+    if args.columns is None and args.format is None and is_compilation_table(text):
+        # the compilations' layout, taken as it is
+        if args.replace:
+            s.levels = []
+        rep = s.import_levels(args.table, include_derived=args.use_derived)
+        s.problem()  # validates J counts and labels before anything is written
+        s.save()
+        if args.json:
+            _json(rep.as_dict())
+            return EXIT_OK
+        for line in rep.summary():
+            con.print(line, highlight=False, markup=False)
+        if args.verbose:
+            for ln, why in rep.skipped:
+                con.print(f"  line {ln}: {why}", highlight=False, markup=False)
+            for lid, why in rep.unlabelled:
+                con.print(f"  {lid}: no label ({why})", highlight=False, markup=False)
+        con.print(f"saved {s.path}", highlight=False)
+        return EXIT_OK
     defaults = {}
     if args.parity:
         defaults["parity"] = args.parity
     if args.configuration:
         defaults["configuration"] = args.configuration
+    bad: list[tuple[int, str]] = []
     levels = read_levels(args.table, _columns(args.columns), args.format, defaults,
-                         id_start=1 if args.replace else len(s.levels) + 1)
+                         id_start=1 if args.replace else len(s.levels) + 1,
+                         skip_bad=args.skip_bad, bad_rows=bad)
     if args.replace:
         s.levels = []
     used = {lv.id for lv in s.levels}
+    kept = []
     for lv in levels:
-        if lv.id in used:
-            raise FinefitError(f"{args.table}: level id {lv.id!r} exists in the session", lv.id)
-        s._check_level(lv)
+        try:
+            if lv.id in used:
+                raise FinefitError(f"level id {lv.id!r} exists in the session", lv.id)
+            s._check_level(lv)
+        except FinefitError as exc:
+            if not args.skip_bad:
+                raise FinefitError(f"{args.table}: {exc}", lv.id) from None
+            bad.append((0, f"{lv.id}: {exc}"))
+            continue
         used.add(lv.id)
-    s.levels.extend(levels)
+        kept.append(lv)
+    s.levels.extend(kept)
     s.problem()  # validates J counts and labels before anything is written
     s.save()
-    _console(args).print(f"imported {len(levels)} levels into {s.path}")
+    if args.json:
+        _json({"imported": len(kept), "skipped": [{"line": ln, "reason": r} for ln, r in bad]})
+        return EXIT_OK
+    con.print(f"imported {len(kept)} levels into {s.path}", highlight=False)
+    for ln, why in bad:
+        con.print(f"  skipped{f' line {ln}' if ln else ''}: {why}", highlight=False,
+                  markup=False)
     return EXIT_OK
 
 
@@ -441,8 +492,12 @@ def cmd_lines(args) -> int:
             raise FinefitError(f"--radial {item!r} must look like 3s,3p=4.5", item) from None
         radial[(a, b)] = _float(value, f"--radial {pair}")
     air_range = (0.0, 0.0) if args.vacuum else tuple(args.air_range)
+    opt = None
+    if args.optimise:
+        opt = s.optimise_levels(args.optimise)  # for the Ritz covariance; nothing stored
     with _err_console().status("line strengths (Hartree-Fock for missing radial integrals)"):
-        lines, used = s.predict_lines(radial, air_range=air_range)
+        lines, used = s.predict_lines(radial, air_range=air_range,
+                                      observed=not args.calculated, optimised=opt)
     lines = [x for x in lines if x.gf >= args.min_gf][: args.limit]
     if args.json:
         _json({
@@ -451,21 +506,34 @@ def cmd_lines(args) -> int:
                 {"lower": {"J": x.lower.J, "energy": x.lower.energy, "label": x.lower.label},
                  "upper": {"J": x.upper.J, "energy": x.upper.energy, "label": x.upper.label},
                  "wavenumber": x.wavenumber, "vacuum_wavelength": x.vacuum_wavelength,
-                 "air_wavelength": x.air_wavelength, "S": x.S, "gf": x.gf, "A": x.A}
+                 "air_wavelength": x.air_wavelength, "S": x.S, "gf": x.gf, "A": x.A,
+                 "wavenumber_uncertainty": x.wavenumber_uncertainty,
+                 "wavelength_uncertainty": x.wavelength_uncertainty, "from": x.source,
+                 "lower_id": x.lower_id, "upper_id": x.upper_id}
                 for x in lines
             ],
         })
         return EXIT_OK
     con = _console(args)
     tab = Table(title="Predicted electric-dipole lines (strongest first)", title_justify="left")
-    for c in ("λ air (Å)", "λ vac (Å)", "σ (cm-1)", "lower", "J", "upper", "J'", "gf", "A (s-1)"):
-        tab.add_column(c, justify="left" if c in ("lower", "upper") else "right")
+    for c in ("λ air (Å)", "λ vac (Å)", "σ (cm-1)", "±", "from", "lower", "J", "upper", "J'",
+              "gf", "A (s-1)"):
+        tab.add_column(c, justify="left" if c in ("lower", "upper", "from") else "right")
+    from finefit.reports.levelopt import decimals
+
     for x in lines:
-        tab.add_row("" if x.air_wavelength is None else f"{x.air_wavelength:.3f}",
-                    f"{x.vacuum_wavelength:.3f}", f"{x.wavenumber:.2f}", Text(x.lower.label),
-                    format_j(x.lower.J), Text(x.upper.label), format_j(x.upper.J),
+        d = min(decimals(x.wavenumber_uncertainty, 2), 4)  # two digits of the uncertainty
+        dl = min(decimals(x.wavelength_uncertainty, 3), 5)
+        tab.add_row("" if x.air_wavelength is None else f"{x.air_wavelength:.{dl}f}",
+                    f"{x.vacuum_wavelength:.{dl}f}", f"{x.wavenumber:.{d}f}",
+                    "" if x.wavenumber_uncertainty is None else
+                    f"{x.wavenumber_uncertainty:.{d}f}", x.source,
+                    Text(x.lower_id or x.lower.label), format_j(x.lower.J),
+                    Text(x.upper_id or x.upper.label), format_j(x.upper.J),
                     f"{x.gf:.3g}", f"{x.A:.3g}")
     con.print(tab)
+    con.print("from: Ritz = both levels observed (their ids shown); obs/calc = one observed; "
+              "calc = calculated energies (labels shown)")
     con.print("radial integrals (bohr): " + ", ".join(
         f"<{a}|r|{b}> = {v:.4f}" for (a, b), v in used.items()))
     con.print(Text(CAUTION + " Ab initio gf values are typically good to tens of per cent.",
@@ -551,6 +619,69 @@ def cmd_search(args) -> int:
     con.print(tab)
     con.print(Text("A candidate is only a suggestion: confirm it with intensities, g-factors "
                    "or isotope structure before adopting the level.", style="dim"))
+    return EXIT_OK
+
+
+def cmd_optimise(args) -> int:
+    from finefit.reports import levelopt as rep
+    from finefit.storage.atomic import atomic_write_text
+    from finefit.storage.line_tables import read_lines
+
+    s = _load(args.session)
+    ll = read_lines(args.lines, args.medium)
+    opt = s.optimise_levels(ll, args.tolerance, args.reference, args.blends,
+                            uncertainty=args.uncertainty, source=args.lines,
+                            exclude=args.exclude or ())
+    labels = {lv.id: lv.label or "" for lv in s.levels}
+    shown = opt.lines
+    if args.level:
+        lid = s.resolve_level(args.level, "--level")
+        shown = opt.lines_of(lid)
+    if args.flagged:
+        shown = [x for x in shown if x.flags and x.flags != ("defines level",)]
+    written = []
+    if args.export:
+        out = Path(args.export)
+        for name, text in rep.publication_tables(opt, labels, s.ion.name).items():
+            written.append(atomic_write_text(out / name, text, backup=True))
+    record = None
+    if args.write:
+        record = s.apply_levels(opt, args.name)
+        s.save()
+    if args.json:
+        d = opt.to_dict()
+        d["unclassified"] = [{"line": int(ll.source_lines[i]),
+                              "wavenumber": float(ll.wavenumber[i])} for i in opt.unclassified]
+        d["level_set"] = None if record is None else record.name
+        _json(d)
+        return EXIT_OK
+    con = _console(args)
+    con.print(rep.summary_text(opt, ll.wavenumber.size))
+    con.print(rep.level_table(opt, labels))
+    title = "Classified lines with Ritz values"
+    if args.level:
+        title = f"Lines of {args.level}"
+    if args.flagged:
+        title += " (flagged only)"
+    con.print(rep.line_table(opt, shown[: args.limit], title, width=con.width))
+    if len(shown) > args.limit:
+        con.print(f"... {len(shown) - args.limit} more (--limit)")
+    if len(opt.unclassified):
+        con.print(f"{len(opt.unclassified)} unclassified line(s) stay for the level search: "
+                  + ", ".join(f"{ll.wavenumber[i]:.3f}" for i in opt.unclassified[:20])
+                  + (" ..." if len(opt.unclassified) > 20 else ""))
+    if opt.unconnected:
+        con.print(f"levels without classified lines (unchanged): {', '.join(opt.unconnected)}")
+    for w in opt.warnings:
+        con.print(Text("warning: " + w, style="yellow"))
+    n_out = sum(1 for x in opt.lines if "outlier" in x.flags)
+    if n_out:
+        con.print(Text(f"{n_out} line(s) more than 3 standard deviations from their Ritz "
+                       "value: misclassified, blended or mismeasured?", style="yellow"))
+    if written:
+        con.print("wrote " + ", ".join(str(p) for p in written))
+    if record is not None:
+        con.print(f"updated {record.n_levels} levels of {s.path} (level set {record.name!r})")
     return EXIT_OK
 
 
@@ -646,6 +777,12 @@ def build_parser() -> argparse.ArgumentParser:
                     metavar=("FROM", "TO"), help="air wavelengths inside this range, angstrom "
                     "(default 2000 20000, common practice)")
     sp.add_argument("--vacuum", action="store_true", help="vacuum wavelengths only")
+    sp.add_argument("--calculated", action="store_true",
+                    help="calculated energies throughout (default: Ritz values of the observed "
+                    "levels where both are observed)")
+    sp.add_argument("--optimise", metavar="LINES",
+                    help="optimise the levels from this line list first (not stored) and take "
+                    "the Ritz values and their uncertainties from its covariance")
     sp.set_defaults(func=cmd_lines)
 
     sp = add("classify", "classify an observed line list by Ritz combinations of the levels")
@@ -655,6 +792,29 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--limit", type=int, default=200, help="list at most this many "
                     "unclassified lines")
     sp.set_defaults(func=cmd_classify)
+
+    sp = add("optimise", "optimise the level energies from a classified line list (Ritz)")
+    sp.add_argument("lines", help="line list; 'lower' and 'upper' columns (ids or labels) "
+                    "classify it, otherwise it is classified here by Ritz combinations")
+    sp.add_argument("--tolerance", type=float, help="classification window, cm-1 (default: "
+                    "3 x the line and two level uncertainties combined, at least 0.05)")
+    sp.add_argument("--uncertainty", type=float, help="cm-1, for lines without one")
+    sp.add_argument("--reference", help="level held fixed (default: the lowest with a line)")
+    sp.add_argument("--blends", choices=("exclude", "share"), default="exclude",
+                    help="lines with two classifications: left out of the fit (default) or "
+                    "shared between them")
+    sp.add_argument("--medium", choices=("air", "vacuum"), help="medium of the wavelengths")
+    sp.add_argument("--exclude", type=int, action="append", metavar="FILE_LINE",
+                    help="keep the line on this file line out of the fit (repeatable)")
+    sp.add_argument("--level", help="list only the lines of this level")
+    sp.add_argument("--flagged", action="store_true", help="list only flagged lines")
+    sp.add_argument("--limit", type=int, default=200, help="list at most this many lines")
+    sp.add_argument("--export", metavar="FOLDER",
+                    help="write LaTeX and CSV tables of the levels and the Ritz lines")
+    sp.add_argument("--write", action="store_true",
+                    help="store the optimised energies and uncertainties in the session")
+    sp.add_argument("--name", help="name of the level-set record (default: the line list)")
+    sp.set_defaults(func=cmd_optimise)
 
     sp = add("search", "search a missing level among the unclassified lines")
     sp.add_argument("lines", help="line list (wavenumber or wavelength column)")
@@ -692,6 +852,12 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--write", action="store_true", help="store the fitted values in the session")
     sp.add_argument("--keep", metavar="NAME", help="save the fit as a named parameter set")
     sp.add_argument("--predictions", action="store_true", help="also list unobserved levels")
+    sp.add_argument("--starts", type=int, default=1, metavar="N",
+                    help="also refit from the ab initio values and random starts (±30 %%); "
+                    "keep the best and say how many starts reached it")
+    sp.add_argument("--seed", type=int, default=0, help="seed of the random starts")
+    sp.add_argument("--force", action="store_true",
+                    help="with --write/--keep: store the values even if the fit did not converge")
     sp.set_defaults(func=cmd_fit)
 
     sp = add("check", "observed vs calculated at the current values (no fit)")
@@ -739,14 +905,21 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("level", nargs="+")
     sp.set_defaults(func=lambda a: cmd_include(a, False))
 
-    sp = add("import", "read observed levels from a CSV, TSV or whitespace table",
-             json_flag=False)
+    sp = add("import", "read observed levels: a published level list as it is, or a CSV, "
+             "TSV or whitespace table with a column mapping")
     sp.add_argument("table")
-    sp.add_argument("--columns", help="field=column pairs, e.g. 'energy=E,J=Jval,label=desig'")
+    sp.add_argument("--columns", help="field=column pairs, e.g. 'energy=E,J=Jval,label=desig'; "
+                    "'configuration=' switches a column off")
     sp.add_argument("--format", choices=("csv", "tsv", "txt"))
     sp.add_argument("--parity", choices=("even", "odd"), help="parity of levels without one")
     sp.add_argument("--configuration", help="configuration of levels without one")
     sp.add_argument("--replace", action="store_true", help="replace the session's levels")
+    sp.add_argument("--skip-bad", action="store_true",
+                    help="import the good rows of a table with bad ones (each is listed)")
+    sp.add_argument("--use-derived", action="store_true",
+                    help="published lists: fit levels given in brackets (derived, not observed)")
+    sp.add_argument("--verbose", action="store_true",
+                    help="published lists: list every skipped row and unlabelled level")
     sp.set_defaults(func=cmd_import)
 
     sp = add("export", "write the observed levels as a table", json_flag=False)

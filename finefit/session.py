@@ -11,6 +11,7 @@ This is the API the command line, the terminal workspace and notebooks share.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Callable
 from dataclasses import replace
 from datetime import UTC, datetime
@@ -21,10 +22,13 @@ from finefit.errors import FinefitError
 from finefit.fitting.fit import FitProblem
 from finefit.fitting.results import FitResult
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
+from finefit.model.coupling import coupling_data
 from finefit.model.hamiltonian import Model
+from finefit.model.label_match import LabelTarget, resolve_label
 from finefit.notation.configuration import parse_configuration
 from finefit.notation.jvalues import parse_j
 from finefit.storage.atomic import atomic_write_text, read_text
+from finefit.storage.level_sets import LevelSet
 from finefit.storage.session_file import (
     Ion,
     ParameterSet,
@@ -65,6 +69,7 @@ class Session:
         self.note = data.note
         self.options = data.options
         self.parameter_sets: list[ParameterSet] = list(data.parameter_sets)
+        self.level_sets: list[LevelSet] = list(data.level_sets)
         self.configurations = [str(parse_configuration(c)) for c in data.configurations]
         self._sets = group_by_parity(self.configurations)
         self.models = {p: model_for(cfgs) for p, cfgs in self._sets.items()}
@@ -84,7 +89,9 @@ class Session:
                 )
         self.levels: list[ObservedLevel] = []
         for lv in data.levels:
-            self._check_level(lv)
+            # labels are read strictly when they are used (attach, fit) and when edited, so
+            # that a file with a label this version reads differently stays loadable
+            self._check_level(lv, labels=False)
             self.levels.append(lv)
         self.last_result: FitResult | None = None
 
@@ -123,6 +130,7 @@ class Session:
             ion=self.ion, configurations=list(self.configurations),
             parameters=dict(self.parameters), levels=list(self.levels), options=self.options,
             parameter_sets=list(self.parameter_sets), title=self.title, note=self.note,
+            level_sets=list(self.level_sets),
         )
 
     def to_toml(self) -> str:
@@ -181,7 +189,7 @@ class Session:
         return {n: s.value for n, s in self.parameters.items()}
 
     # ------------------------------------------------------------------ levels
-    def _check_level(self, lv: ObservedLevel) -> None:
+    def _check_level(self, lv: ObservedLevel, labels: bool = True) -> None:
         if lv.parity not in self.models:
             raise FinefitError(
                 f"level {lv.id}: the session has no {lv.parity} configuration", lv.id
@@ -202,6 +210,39 @@ class Session:
             lv.configuration = c
         if not math.isfinite(lv.energy):
             raise FinefitError(f"level {lv.id}: energy must be finite", lv.id)
+        if labels and lv.label:
+            lv.label = self.resolve_label(lv.label, lv.J, lv.parity, lv.id).text
+        if labels and isinstance(lv.state, str):
+            lv.state = self.resolve_label(lv.state, lv.J, lv.parity, lv.id).text
+
+    def resolve_label(
+        self, label: str, J: float | str, parity: str, level_id: str | None = None
+    ) -> LabelTarget:
+        """The basis state a label names (strict: see :func:`finefit.model.label_match`)."""
+        if parity not in self.models:
+            raise FinefitError(f"the session has no {parity} configuration", parity)
+        model = self.models[parity]
+        try:
+            return resolve_label(coupling_data(model), label, parse_j(J))
+        except FinefitError as exc:
+            if level_id is None:
+                raise
+            raise FinefitError(f"level {level_id}: {exc}", level_id) from None
+
+    def import_levels(self, path: str | Path, include_derived: bool = False):
+        """Import a published level list in the compilations' layout (see DEVELOPERS.md).
+
+        Only levels of the session's configurations are taken; every other row is
+        listed in ``report.skipped`` with its line and reason. Returns the
+        :class:`~finefit.level_import.ImportReport`; the session is changed in place.
+        """
+        from finefit.level_import import import_compilation
+
+        return import_compilation(self, path, include_derived=include_derived)
+
+    def new_level_id(self) -> str:
+        """The next free level id (``L001``, ``L002``, ...)."""
+        return self._new_id()
 
     def _new_id(self) -> str:
         used = {lv.id for lv in self.levels}
@@ -293,11 +334,83 @@ class Session:
         self,
         should_stop: Callable[[], bool] | None = None,
         progress: Callable[[int, float], None] | None = None,
+        starts: int = 1,
+        seed: int = 0,
     ) -> FitResult:
-        """Fit with the session's options; the session's values are not changed."""
+        """Fit with the session's options; the session's values are not changed.
+
+        ``starts`` > 1 refits from further starting points: the ab initio values (F, G,
+        R^k at 0.85 of Hartree-Fock, common practice; zeta as computed) where the
+        session has them, then random perturbations of every varied value by up to
+        ±30 % (reproducible with ``seed``). The best result is kept (converged first,
+        then fewest label mismatches, then lowest chi-square) and says how many
+        starts reached it.
+        """
         result = self.problem().fit(should_stop=should_stop, progress=progress)
+        if starts > 1:
+            result = self._best_of_starts(result, starts, seed, should_stop)
         self.last_result = result
         return result
+
+    def _start_settings(self, k: int, rng) -> dict[str, ParameterSetting] | None:
+        settings = {n: p.copy() for n, p in self.parameters.items()}
+        kinds = {sp.name: sp.kind for m in self.models.values() for sp in m.parameter_specs}
+        if k == 1:
+            if not any(p.ab_initio for p in settings.values()):
+                return None
+            for n, p in settings.items():
+                if p.ab_initio and kinds.get(n) != "Eav" and (p.vary or p.link):
+                    scale = 1.0 if kinds.get(n) == "zeta" else 0.85
+                    p.value = p.ab_initio * scale
+        else:
+            for n, p in settings.items():
+                if (p.vary or p.link) and kinds.get(n) != "Eav" and p.value:
+                    p.value *= float(rng.uniform(0.7, 1.3))
+        for p in settings.values():
+            if p.min is not None:
+                p.value = max(p.value, p.min)
+            if p.max is not None:
+                p.value = min(p.value, p.max)
+        return settings
+
+    def _best_of_starts(self, first: FitResult, starts: int, seed: int, should_stop):
+        import dataclasses
+
+        import numpy as np
+
+        rng = np.random.default_rng(seed)
+        results = [first]
+        for k in range(1, starts):
+            settings = self._start_settings(k, rng)
+            if settings is None:
+                settings = self._start_settings(2, rng)
+            try:
+                prob = FitProblem(self.models, settings, self.levels, self.options)
+                results.append(prob.fit(should_stop=should_stop))
+            except FinefitError:
+                continue
+
+        def rank(r: FitResult):
+            return (not r.converged, sum(row.label_mismatch for row in r.levels), r.chi2)
+
+        best = min(results, key=rank)
+        tol = 1e-3 * best.chi2 + 1e-9
+        reached = sum(
+            1 for r in results if r.converged and abs(r.chi2 - best.chi2) <= tol
+        )
+        note = (
+            f"{reached} of {len(results)} starts reached this minimum"
+            + (f" (sigma {best.sigma:.4g} cm-1)" if best.sigma is not None else "")
+        )
+        others = sorted(
+            {round(r.sigma, 3) for r in results if r.converged and r.sigma is not None
+             and abs(r.chi2 - best.chi2) > tol}
+        )
+        if others:
+            note += "; other minima at sigma " + ", ".join(f"{x:g}" for x in others[:5])
+        return dataclasses.replace(
+            best, warnings=[*best.warnings, note], starts=(reached, len(results))
+        )
 
     @with_engine_threads
     def report(self) -> FitResult:
@@ -348,13 +461,20 @@ class Session:
         radial: dict[tuple[str, str], float] | None = None,
         min_strength: float = 0.0,
         air_range: tuple[float, float] = (2000.0, 20000.0),
+        observed: bool = True,
+        optimised=None,
     ):
         """E1 lines between the session's even and odd levels at the current values.
 
-        Wavenumbers come from the calculated energies, their uncertainties from the
-        covariance of a fit at the current set-up (combined in quadrature for the two
-        parities). Radial dipole integrals (bohr) not given in ``radial`` come from
-        Hartree-Fock runs. Returns (lines, radial integrals used).
+        Between two observed levels (attached to the computed states) the wavenumber is
+        the Ritz value of the observed energies (``line.source == "Ritz"``), with the
+        uncertainty from the covariance of ``optimised`` (a level optimisation) where
+        it holds both levels, else the two level uncertainties (or the fit's default
+        uncertainty) in quadrature. Where a level is unobserved its calculated energy is
+        used, with the uncertainty from the covariance of a fit at the current set-up.
+        ``observed=False`` uses calculated energies throughout. Radial dipole integrals
+        (bohr) not given in ``radial`` come from Hartree-Fock runs. Returns (lines,
+        radial integrals used).
         """
         from finefit.lines.radial_join import ab_initio_dipoles
         from finefit.lines.transitions import DipoleModel, predict_lines
@@ -382,8 +502,25 @@ class Session:
         def level_uncertainty(level):
             return unc.get((level.parity, level.block, level.position))
 
+        obs = {}
+        if observed:
+            for row in result.levels:
+                e, u = row.energy_obs, row.uncertainty or self.options.default_uncertainty
+                if optimised is not None and row.id in optimised.levels:
+                    e, u = optimised.levels[row.id]
+                obs[(row.parity, round(2 * row.J), row.state_rank - 1)] = (row.id, e, u)
+
+        def observed_level(level):
+            return obs.get((level.parity, level.block, level.position))
+
+        def ritz_uncertainty(lower_id: str, upper_id: str):
+            if optimised is None or lower_id not in optimised.levels \
+                    or upper_id not in optimised.levels:
+                return None
+            return optimised.ritz(lower_id, upper_id)[1]
+
         lines = predict_lines(dip, sols["even"], sols["odd"], given, min_strength,
-                              level_uncertainty, air_range)
+                              level_uncertainty, air_range, observed_level, ritz_uncertainty)
         return lines, given
 
     def search_level(
@@ -446,6 +583,182 @@ class Session:
         return [KnownLevel(lv.id, lv.energy, lv.J, lv.parity, lv.uncertainty or 0.0)
                 for lv in self.levels]
 
+    # ------------------------------------------------------------------ level optimisation
+    def resolve_level(self, text: str, where: str = "") -> str:
+        """A level id from an id, a label (``2p 3s 3P°``) or a label followed by J
+        (``2p 3s 3P° 1``, or compact ``2p 3s 3P°1`` for labels without a trailing digit)."""
+        from finefit.notation.jvalues import parse_j as pj
+
+        def norm(x: str) -> str:
+            return " ".join(x.replace("*", "°").split())
+
+        key = text.strip()
+        for lv in self.levels:
+            if lv.id == key:
+                return lv.id
+        hits = [lv for lv in self.levels if lv.label and norm(lv.label) == norm(key)]
+        splits = []
+        if " " in key:
+            splits.append(tuple(key.rsplit(None, 1)))  # "2p 3s 3P° 1"
+        compact = re.match(r"^(.*[A-Z][°*]?)(\d+/2|\d+(?:\.\d)?)$", key)
+        if compact:
+            splits.append((compact.group(1), compact.group(2)))  # "2p 3s 3P°1"
+        for head, tail in splits:
+            if len(hits) == 1:
+                break
+            try:
+                j = pj(tail)
+            except FinefitError:
+                continue
+            hits = [lv for lv in self.levels
+                    if lv.label and norm(lv.label) == norm(head) and lv.J == j]
+        prefix = f"{where}: " if where else ""
+        if len(hits) == 1:
+            return hits[0].id
+        if len(hits) > 1:
+            raise FinefitError(
+                f"{prefix}{text!r} names {len(hits)} levels "
+                f"({', '.join(lv.id for lv in hits)}); add J or use the level id", text)
+        raise FinefitError(f"{prefix}no level has the id or label {text!r}", text)
+
+    def optimise_levels(
+        self,
+        lines,
+        tolerance: float | None = None,
+        reference: str | None = None,
+        blends: str = "exclude",
+        medium: str | None = None,
+        uncertainty: float | None = None,
+        source: str | None = None,
+        exclude=(),
+    ):
+        """Level energies from a line list by weighted least squares (levelopt module).
+
+        ``lines`` is a line-list file (or a ``LineList``). A list with ``lower``/``upper``
+        columns is taken as classified; otherwise every line is classified here by Ritz
+        combinations of the session's levels within ``tolerance`` (default: three times
+        the combined uncertainty of the line and two typical levels, common practice, but
+        at least 0.05 cm^-1).
+        Lines without an uncertainty take ``uncertainty`` (cm^-1); a list without any
+        weighs all lines alike and estimates their common uncertainty from the residuals
+        (sqrt(chi^2/dof)), and says so in ``warnings``. ``reference`` (an id
+        or label) is held fixed; default the lowest level that has a line. ``source``
+        names the line list in the record (default: the file name given). ``exclude``
+        lists file line numbers of lines kept out of the fit (their Ritz values are
+        still given).
+        """
+        import numpy as np
+
+        from finefit.lines.classify import classify_lines
+        from finefit.lines.levelopt import optimise_levels
+        from finefit.storage.line_tables import LineList, read_lines
+
+        ll = lines if isinstance(lines, LineList) else read_lines(lines, medium)
+        if source is None:
+            source = "" if isinstance(lines, LineList) else str(lines)
+        n = ll.wavenumber.size
+        unc = np.full(n, np.nan) if ll.uncertainty is None else np.array(ll.uncertainty)
+        if uncertainty is not None:
+            if not float(uncertainty) > 0:
+                raise FinefitError("the line uncertainty must be positive", "uncertainty")
+            unc = np.where(np.isfinite(unc), unc, float(uncertainty))
+        # a list without any uncertainty: equal weights, the common uncertainty estimated
+        # from the residuals afterwards (a start of tolerance/3, 0.05 cm-1 by default,
+        # for the classification window: common practice)
+        estimate = not np.any(np.isfinite(unc))
+        if estimate:
+            unc = np.full(n, (tolerance if tolerance else 0.05) / 3.0)
+        missing = np.flatnonzero(~np.isfinite(unc))
+        if missing.size:
+            raise FinefitError(
+                f"{source or 'line list'} line {int(ll.source_lines[missing[0]])}: no "
+                "uncertainty (add an 'uncertainty' column or give a default uncertainty)",
+                "uncertainty")
+        if tolerance is not None and not tolerance > 0:
+            raise FinefitError("the classification tolerance must be positive", "tolerance")
+        if ll.lower is not None:
+            classes = []
+            for i in range(n):
+                where = f"line {int(ll.source_lines[i])}"
+                if not ll.lower[i]:
+                    classes.append([])
+                    continue
+                pairs = zip(ll.lower[i].split("+"), ll.upper[i].split("+"), strict=True)
+                classes.append([(self.resolve_level(a, where), self.resolve_level(b, where))
+                                for a, b in pairs])
+        else:
+            known = self.known_levels()
+            if tolerance is None:
+                given = [lv.uncertainty for lv in self.levels if lv.uncertainty]
+                u_lev = float(np.median(given)) if given else 0.0
+                # never narrower than the classify command's default window
+                tol = np.maximum(0.05, 3.0 * np.sqrt(unc**2 + 2.0 * u_lev**2))
+            else:
+                tol = float(tolerance)
+            c = classify_lines(known, ll.wavenumber, tol, unc)
+            classes = [[(a, b) for a, b, _ in m] for m in c.matches]
+        ref = None if reference is None else self.resolve_level(reference, "reference")
+        rows = {int(x): i for i, x in enumerate(ll.source_lines)}
+        skip = []
+        for x in exclude:
+            if int(x) not in rows:
+                raise FinefitError(f"{source or 'line list'}: there is no line on file line "
+                                   f"{x} to exclude", str(x))
+            skip.append(rows[int(x)])
+        opt = optimise_levels(self.known_levels(), ll.wavenumber, unc, classes, ref, blends,
+                              ll.intensity, ll.source_lines, source=source, exclude=skip)
+        if estimate and opt.dof > 0:
+            common = float(unc[0] * np.sqrt(opt.chi2 / opt.dof))
+            opt = optimise_levels(self.known_levels(), ll.wavenumber, np.full(n, common),
+                                  classes, ref, blends, ll.intensity, ll.source_lines,
+                                  source=source, exclude=skip)
+            opt.warnings.append(f"the line list gives no uncertainties: all lines weighted "
+                                f"alike, with {common:.2g} cm-1 estimated from the residuals")
+        elif estimate:
+            opt.warnings.append(f"the line list gives no uncertainties and no degree of freedom "
+                                f"is left: {unc[0]:.2g} cm-1 (tolerance/3) assumed per line")
+        return opt
+
+    def apply_levels(self, opt, name: str | None = None, note: str = "") -> LevelSet:
+        """Take optimised energies and uncertainties as the session's observed levels.
+
+        Every optimised level gets its energy and its uncertainty relative to the
+        reference (the reference keeps its own uncertainty: zero is no weight a fit can
+        use); a ``LevelSet`` record names the line list and keeps the replaced values.
+        """
+        from pathlib import PurePath
+
+        stamp = datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
+        if not name:
+            base = PurePath(opt.source).name if opt.source else "lines"
+            name, k = base, 2
+            while any(ls.name == name for ls in self.level_sets):
+                name, k = f"{base} ({k})", k + 1
+        elif any(ls.name == name for ls in self.level_sets):
+            raise FinefitError(f"a level set named {name!r} exists already", name)
+        energies, uncs, prev, prev_u = {}, {}, {}, {}
+        for lid, (e, u) in opt.levels.items():
+            lv = self.level(lid)
+            prev[lid] = lv.energy
+            if lv.uncertainty is not None:
+                prev_u[lid] = lv.uncertainty
+            changes = {"energy": float(e)}
+            if u > 0:
+                changes["uncertainty"] = float(u)
+                uncs[lid] = float(u)
+            energies[lid] = float(e)
+            self.update_level(lid, **changes)
+        ls = LevelSet(
+            name=name, created=stamp, source=opt.source, reference=opt.reference,
+            energies=energies, uncertainties=uncs, previous=prev, previous_uncertainties=prev_u,
+            blends=opt.blends, n_lines=opt.n_used, n_levels=len(energies), chi2=opt.chi2,
+            excluded=sorted({x.source_line for x in opt.lines
+                             if "excluded" in x.flags and "blend" not in x.flags}),
+            dof=opt.dof, note=note or "; ".join(opt.warnings),
+        )
+        self.level_sets.append(ls)
+        return ls
+
     # ------------------------------------------------------------------ parameter sets
     def keep(self, result: FitResult, name: str, note: str = "") -> ParameterSet:
         """Store a fit as a named, timestamped parameter set."""
@@ -501,3 +814,9 @@ class Session:
 def load(path: str | Path) -> Session:
     """Read a session file (the CONVENTIONS.md entry point)."""
     return Session.load(path)
+
+
+def optimise_levels(session: Session, lines, **options):
+    """Level energies of ``session`` optimised from a line list (CONVENTIONS.md,
+    "Level optimisation"); options as :meth:`Session.optimise_levels`."""
+    return session.optimise_levels(lines, **options)

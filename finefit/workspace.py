@@ -12,7 +12,7 @@ from __future__ import annotations
 import copy
 import os
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from finefit.errors import FinefitError
@@ -28,6 +28,7 @@ class Snapshot:
     parameter_sets: list
     options: object
     description: str
+    level_sets: list = field(default_factory=list)
 
 
 def journal_path(session_path: Path) -> Path:
@@ -92,6 +93,7 @@ class Workspace:
             parameter_sets=copy.deepcopy(s.parameter_sets),
             options=copy.deepcopy(s.options),
             description=description,
+            level_sets=copy.deepcopy(s.level_sets),
         )
 
     def _restore(self, snap: Snapshot) -> None:
@@ -100,6 +102,7 @@ class Workspace:
         s.levels = [lv.copy() for lv in snap.levels]
         s.parameter_sets = copy.deepcopy(snap.parameter_sets)
         s.options = copy.deepcopy(snap.options)
+        s.level_sets = copy.deepcopy(snap.level_sets)
 
     def edit(self, description: str, change: Callable[[Session], object]) -> object:
         """Apply ``change`` to the session as one undoable step.

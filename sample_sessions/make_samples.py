@@ -89,7 +89,13 @@ def noble_gas_like() -> Session:
 
 
 def two_parity() -> tuple[Session, str]:
-    """Both parities of an invented carbon-like atom, a line list, and one level left out."""
+    """Both parities of an invented carbon-like atom, a line list, and one level left out.
+
+    The 'earlier analysis' levels in the session carry 0.02 cm-1 noise; the line list is
+    ten times better (0.003 A), so optimising the levels from it pays. One line is
+    deliberately mismeasured (an invented blend with an impurity line) and six lines
+    belong to no level of the atom.
+    """
     from finefit.lines.wavelengths import vacuum_to_air
 
     configs = ["2p 3s", "2p 3p"]
@@ -110,14 +116,20 @@ def two_parity() -> tuple[Session, str]:
         for lev in sol.levels:
             e = lev.energy + rng.normal(0, 0.02)
             kept.append((parity, lev, e))
-    rows = ["# INVENTED line list (Kestrel Ridge demo): air wavelengths from invented levels,",
-            "# 0.002 A noise, relative intensities from predicted gf; plus 6 unrelated lines.",
+    unc = 0.003  # angstrom, the stated uncertainty and the size of the noise
+    rows = ["# INVENTED line list (Kestrel Ridge demo): air wavelengths of lines between",
+            f"# invented levels with {unc} A noise, relative intensities from predicted gf;",
+            "# one line mismeasured on purpose (+0.025 A, an invented impurity blend), plus",
+            "# 6 lines that belong to no level of the atom.",
             "wavelength intensity uncertainty"]
-    for x in lines:
-        lam = x.air_wavelength or x.vacuum_wavelength
-        rows.append(f"{lam + rng.normal(0, 0.002):.4f} {1000 * x.gf:.0f} 0.003")
+    shown = [x for x in lines if 1e5 * x.gf >= 0.5]  # the faintest are not seen
+    for k, x in enumerate(shown):
+        lam = float(vacuum_to_air(x.vacuum_wavelength)) + rng.normal(0, unc)
+        if k == 4:
+            lam += 0.025  # the deliberate blend
+        rows.append(f"{lam:.4f} {1e5 * x.gf:.0f} {unc}")
     for _ in range(6):
-        rows.append(f"{rng.uniform(6000, 12000):.4f} {rng.integers(5, 50)} 0.003")
+        rows.append(f"{rng.uniform(6000, 12000):.4f} {rng.integers(5, 50)} {unc}")
     # the level left out for the search demo: the highest J = 2 level of 2p 3p
     j2 = [k for k in kept if k[0] == "even" and k[1].J == 2.0]
     leave = max(j2, key=lambda k: k[2])
@@ -130,8 +142,8 @@ def two_parity() -> tuple[Session, str]:
         start = v + 150 if "Eav" in name else v * (1 + 0.05 * rng.standard_normal())
         s.set_parameter(name, round(start, 1), vary=True)
     s.note = NOTE.format(noise=0.02, extra=f"The J = 2 level near {leave[2]:.0f} cm-1 is "
-                         "left out on purpose: find it with 'finefit search'.")
-    del vacuum_to_air
+                         "left out on purpose: find it with 'finefit search'. The line list "
+                         f"has {unc} A noise and one deliberately mismeasured line.")
     return s, "\n".join(rows) + "\n"
 
 

@@ -14,7 +14,8 @@ import numpy as np
 import scipy.sparse as sp
 
 from finefit.angular.determinants import SpinOrbitals, TwoBodyTerms
-from finefit.angular.wigner import clebsch_gordan2, gaunt
+from finefit.angular.wigner import clebsch_gordan2, gaunt, three_j2
+from finefit.errors import FinefitError
 
 OneBody = list[tuple[int, int, float]]
 
@@ -274,3 +275,72 @@ def j_subshell_operators(so: SpinOrbitals, shell: int, j2: int) -> tuple[OneBody
         {(m + 2, m): 0.5 * np.sqrt(j2 * (j2 + 2) - m * (m + 2)) for m in states if m + 2 in states}
     )
     return number, jz, jplus
+
+
+def _unit_tensor(l: int, k: int, m: int, mp: int) -> float:
+    """<l m|u^k_q|l m'> with <l||u^k||l> = 1: (-1)^(l-m) (l k l; -m q m'), q = m - m'."""
+    q = m - mp
+    if abs(q) > k:
+        return 0.0
+    sign = -1.0 if (l - m) % 2 else 1.0
+    return sign * three_j2(2 * l, 2 * k, 2 * l, -2 * m, 2 * q, 2 * mp)
+
+
+def subshell_casimir_terms(
+    so: SpinOrbitals, shell: int, group: str
+) -> tuple[OneBody, TwoBodyTerms]:
+    """Casimir operator of SO(2l+1) (``"SO"``) or, for f shells, G2 (``"G2"``) of one subshell.
+
+    Both are sums (2k+1)(U^k . U^k) of the orbital unit tensors U^k = sum_i u^k(i)
+    (the weight 2k+1 makes the components orthonormal under the trace): the
+    generators of SO(2l+1) are the U^k of odd k = 1, 3, ..., 2l-1, those of G2
+    (l = 3) are U^1 and U^5 (Racah 1949, Phys. Rev. 76, 1352; Judd, Operator
+    Techniques in Atomic Spectroscopy, 1963). The scale is chosen so that the
+    eigenvalues are G(R7) = (w1(w1+5) + w2(w2+3) + w3(w3+1))/10 and
+    G(G2) = (u1^2 + u1 u2 + u2^2 + 5 u1 + 4 u2)/12 (for SO(2l+1) in general
+    sum_i w_i (w_i + 2l + 1 - 2i) / (2(2l - 1))).
+
+    Returns the one-body part (a multiple of the subshell's number operator) and
+    the two-body terms.
+    """
+    orbitals = [int(i) for i in so.of_shell(shell)]
+    l = int(so.l[orbitals[0]])
+    if group == "SO":
+        ranks = list(range(1, 2 * l, 2))
+        scale = 1.0 / (2 * l - 1)  # one electron: sum (2k+1)/(2l+1) = l -> l/(2l-1)
+    elif group == "G2":
+        if l != 3:
+            raise FinefitError(f"G2 is defined for f shells only, not l = {l}", group)
+        ranks = [1, 5]
+        scale = 1.0 / 4.0  # one electron: (3 + 11)/7 = 2 -> G(G2)(10) = 1/2
+    else:
+        raise FinefitError(f"unknown group {group!r}: use 'SO' or 'G2'", group)
+    # U_q U_-q = sum u_ab u_cd (a+_a a+_c a_d a_b + delta_bc a+_a a_d); the one-body part of a
+    # scalar within one subshell is a multiple of N: (2k+1)/(2l+1) per rank and electron
+    per_electron = scale * sum(2 * k + 1 for k in ranks) / (2 * l + 1)
+    one: OneBody = [(i, i, per_electron) for i in orbitals]
+    ml = {i: int(so.ml[i]) for i in orbitals}
+    ms = {i: int(so.ms2[i]) for i in orbitals}
+    rows = []
+    for a in orbitals:
+        for c in orbitals:
+            if ms[a] != ms[c]:
+                continue
+            q = ml[a] - ml[c]
+            for b in orbitals:
+                for d in orbitals:
+                    if ms[b] != ms[d] or ml[b] - ml[d] != -q:
+                        continue
+                    w = 0.0
+                    for k in ranks:
+                        w += (2 * k + 1) * (
+                            _unit_tensor(l, k, ml[a], ml[c]) * _unit_tensor(l, k, ml[b], ml[d])
+                        )
+                    w *= -scale if q % 2 else scale
+                    if w != 0.0:
+                        rows.append((a, b, c, d, w))
+    if not rows:
+        return one, TwoBodyTerms(*(np.zeros(0, dtype=np.int64),) * 4, np.zeros((0, 1)))
+    arr = np.array([r[:4] for r in rows], dtype=np.int64)
+    w = np.array([[r[4]] for r in rows])
+    return one, normalise_two_body(arr[:, 0], arr[:, 1], arr[:, 2], arr[:, 3], w)

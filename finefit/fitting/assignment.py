@@ -11,15 +11,14 @@ not swap when two eigenvalues cross.
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from finefit.errors import FinefitError
 from finefit.fitting.settings import ObservedLevel
+from finefit.model.label_match import resolve_label
 from finefit.notation.jvalues import format_j
-from finefit.notation.labels import normalise_label
 
 
 def linear_sum_assignment(cost: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -29,29 +28,15 @@ def linear_sum_assignment(cost: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return solve(cost)
 
 
-def _strip_qualifiers(label: str) -> str:
-    """Label without seniority digits/letters after term letters (for loose matching)."""
-    return re.sub(r"([A-Z]°?)\d+[a-z]?(?=[)\s]|$)", r"\1", label)
 
+def label_overlaps(coupling: dict, J2: int, label: str, J: float, vectors: np.ndarray):
+    """The state a label names and its squared overlap with each eigenvector.
 
-def match_label(label: str, basis_labels: list[str], J: float) -> int | None:
-    """Row of the LS basis state named by ``label`` (exact, then without qualifiers or J)."""
-    want = normalise_label(label)
-    if want in basis_labels:
-        return basis_labels.index(want)
-    # compact J written at the end, e.g. '3d6(5D)4s 6D9/2'
-    jt = format_j(J)
-    if want.endswith(jt):
-        head = want[: -len(jt)].rstrip("_ ")
-        if head in basis_labels:
-            return basis_labels.index(head)
-        want = head
-    loose = [_strip_qualifiers(b) for b in basis_labels]
-    w = _strip_qualifiers(want)
-    hits = [i for i, b in enumerate(loose) if b == w]
-    if len(hits) >= 1:
-        return hits[0]
-    return None
+    The overlap is taken in the label's own coupling scheme (LS, JK, J1j or jj).
+    """
+    target = resolve_label(coupling, label, J)
+    _, coords = coupling[J2].scheme(target.scheme, vectors)
+    return target, coords[target.row] ** 2
 
 
 @dataclass
@@ -96,7 +81,7 @@ def attach_block(
     levels: list[ObservedLevel],
     energies: np.ndarray,
     vectors: np.ndarray,
-    basis_labels: list[str],
+    coupling: dict,
     state_config: np.ndarray,
     config_names: list[str],
     assignment: str = "energy-order",
@@ -104,6 +89,7 @@ def attach_block(
     """Eigen index for each observed level of one J block, and warnings."""
     n = energies.size
     J = levels[0].J
+    J2 = int(round(2 * J))
     if len(levels) > n:
         raise FinefitError(
             f"{len(levels)} observed levels have J = {format_j(J)} ({levels[0].parity}) but "
@@ -131,13 +117,11 @@ def attach_block(
                 )
             k = lv.state - 1
         else:
-            row = match_label(lv.state, basis_labels, J)
-            if row is None:
-                raise FinefitError(
-                    f"level {lv.id}: state {lv.state!r} names no LS state of J = {format_j(J)}",
-                    lv.id,
-                )
-            k = int(np.argmax(weights[row]))
+            try:
+                _, overlap = label_overlaps(coupling, J2, lv.state, J, vectors)
+            except FinefitError as exc:
+                raise FinefitError(f"level {lv.id}: pinned state: {exc}", lv.id) from None
+            k = int(np.argmax(overlap))
         if taken[k]:
             other = levels[int(np.flatnonzero(result == k)[0])].id
             warnings.append(
@@ -147,22 +131,20 @@ def attach_block(
         result[i] = k
         taken[k] = True
     # 2. labelled levels: joint maximum overlap
-    lab_idx, rows = [], []
+    lab_idx, rows, overlaps = [], [], []
     for i, lv in enumerate(levels):
         if result[i] >= 0 or not lv.label:
             continue
-        row = match_label(lv.label, basis_labels, J)
-        if row is None:
-            raise FinefitError(
-                f"level {lv.id}: label {lv.label!r} names no LS state of J = {format_j(J)} "
-                f"({levels[0].parity}) in this model",
-                lv.id,
-            )
+        try:
+            target, overlap = label_overlaps(coupling, J2, lv.label, J, vectors)
+        except FinefitError as exc:
+            raise FinefitError(f"level {lv.id}: {exc}", lv.id) from None
         lab_idx.append(i)
-        rows.append(row)
+        rows.append((target.scheme, target.row))
+        overlaps.append(overlap)
     if lab_idx:
         free = np.flatnonzero(~taken)
-        cost = -weights[np.ix_(rows, free)]
+        cost = -np.array(overlaps)[:, free]
         r, c = linear_sum_assignment(cost)
         chosen = {lab_idx[a]: int(free[b]) for a, b in zip(r, c, strict=True)}
         # levels sharing one label: the set of states maximises the overlap, the pairing
@@ -208,3 +190,85 @@ def attach_block(
             result[i] = k
             taken[k] = True
     return result, warnings
+
+
+# Weights of the global attachment cost (in units of one squared standard deviation of
+# the fit): a label-compatible state costs LABEL_WEIGHT * (1 - overlap); an unlabelled
+# level off its configuration costs CONFIG_WEIGHT; keeping the present state earns
+# KEEP_BONUS; energy distances are capped at ENERGY_CAP so that a far state is just "far".
+LABEL_WEIGHT = 4.0
+CONFIG_WEIGHT = 9.0
+KEEP_BONUS = 0.25
+ENERGY_CAP = 400.0
+# a labelled level may sit only on states whose overlap with its label is at least this
+# fraction of the best overlap any state has (a 52/48 mixed pair: both; 90/10: one)
+COMPATIBLE_FRACTION = 0.5
+
+
+def label_compatibility(
+    levels: list[ObservedLevel], vectors: np.ndarray, coupling: dict
+) -> tuple[np.ndarray, np.ndarray]:
+    """Per level and state: squared overlap with the label, and whether the state may carry it.
+
+    Unlabelled levels get overlap 0 and every state compatible.
+    """
+    n_lev, n = len(levels), vectors.shape[1]
+    overlap = np.zeros((n_lev, n))
+    ok = np.ones((n_lev, n), dtype=bool)
+    J = levels[0].J
+    J2 = int(round(2 * J))
+    for i, lv in enumerate(levels):
+        if not lv.label:
+            continue
+        _, o = label_overlaps(coupling, J2, lv.label, J, vectors)
+        overlap[i] = o
+        ok[i] = o >= COMPATIBLE_FRACTION * o.max()
+    return overlap, ok
+
+
+def global_attach_block(
+    levels: list[ObservedLevel],
+    energies: np.ndarray,
+    vectors: np.ndarray,
+    coupling: dict,
+    state_config: np.ndarray,
+    config_names: list[str],
+    current: np.ndarray,
+    scale: float,
+) -> np.ndarray:
+    """One global assignment of the levels of a J block to its eigenstates.
+
+    Minimises, with scipy's linear_sum_assignment, the sum over levels of
+    ((E_obs - E_calc)/scale)^2 (capped), a label term LABEL_WEIGHT (1 - overlap) in the
+    label's own scheme, a configuration term for unlabelled levels and a small bonus
+    for the present state; labelled levels may take only label-compatible states,
+    pinned levels keep theirs.
+    """
+    n = energies.size
+    e_obs = np.array([lv.energy for lv in levels])
+    dist = ((e_obs[:, None] - energies[None, :]) / scale) ** 2
+    cost = np.minimum(dist, ENERGY_CAP)
+    overlap, ok = label_compatibility(levels, vectors, coupling)
+    weights = vectors**2
+    cfg_weight = np.zeros((len(config_names), n))
+    np.add.at(cfg_weight, state_config, weights)
+    for i, lv in enumerate(levels):
+        if lv.label:
+            cost[i] += LABEL_WEIGHT * (1.0 - overlap[i])
+        elif lv.configuration in config_names:
+            cost[i] += CONFIG_WEIGHT * (1.0 - cfg_weight[config_names.index(lv.configuration)])
+        if 0 <= current[i] < n:
+            cost[i, current[i]] -= KEEP_BONUS
+    big = 1e9
+    cost = np.where(ok, cost, big)
+    pinned = [i for i, lv in enumerate(levels) if lv.state is not None]
+    result = current.copy()
+    free_levels = [i for i in range(len(levels)) if i not in pinned]
+    taken = {int(current[i]) for i in pinned}
+    free_states = [j for j in range(n) if j not in taken]
+    if free_levels:
+        sub = cost[np.ix_(free_levels, free_states)]
+        r, c = linear_sum_assignment(sub)
+        for a, b in zip(r, c, strict=True):
+            result[free_levels[a]] = free_states[b]
+    return result

@@ -19,11 +19,17 @@ from dataclasses import dataclass
 import numpy as np
 
 from finefit.errors import FinefitError
-from finefit.fitting.assignment import BlockAttachment, attach_block, match_label
+from finefit.fitting.assignment import (
+    BlockAttachment,
+    attach_block,
+    global_attach_block,
+    label_compatibility,
+)
 from finefit.fitting.results import FitResult, LevelRow, PredictedLevel
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
 from finefit.model.coupling import coupling_data
 from finefit.model.hamiltonian import Model
+from finefit.model.label_match import leading_row, resolve_label
 from finefit.notation.jvalues import format_j
 from finefit.threads import with_engine_threads
 
@@ -186,9 +192,8 @@ class FitProblem:
             x = self._model_x(self.x_start, parity)
             eig = model.eigen_block(b, x)
             w, V = eig.energies, eig.vectors
-            cd = coupling_data(model)[j2]
             idx, warns = attach_block(
-                lvs, w, V, cd.ls_labels, b.state_config, model.configurations,
+                lvs, w, V, coupling_data(model), b.state_config, model.configurations,
                 self.options.assignment,
             )
             self.warnings.extend(warns)
@@ -265,19 +270,48 @@ class FitProblem:
         self,
         should_stop: Callable[[], bool] | None = None,
         progress: Callable[[int, float], None] | None = None,
+        mirror: bool = True,
+        exchanges: bool = True,
     ) -> FitResult:
-        """Run the least-squares fit from the settings' values; never raises for a bad fit."""
+        """Run the least-squares fit from the settings' values; never raises for a bad fit.
+
+        Rounds: a fit that follows the eigenvectors, then one global re-attachment at the
+        fitted values (labels, energies in units of the present sigma, the present
+        state); repeated until the attachment is a fixed point or a round repeats an
+        earlier attachment (then not converged, and the competing attachments are
+        reported). Then exchanges of same-J levels and moves to free states are tried
+        with a refit each (kept when chi-square drops; proposed, not applied, when they
+        contradict a label), and spin-orbit parameters whose sign the data may leave
+        open are refitted from the mirrored start.
+        """
         if not self.variables:
             return self.report(message="nothing to vary: values as given")
         if not self.included:
             raise FinefitError("no observed level is included in the fit", "levels")
+        self._should_stop = should_stop
+        self._progress = progress
+        self._total = 0
+        self.suspected: list[tuple[str, str, float]] = []
+        self.diagnoses: list[str] = []
+        v, converged, message = self._fit_to_fixed_point(self.v_start)
+        frozen = not self.options.follow_eigenvectors
+        if converged and exchanges and not frozen:
+            v, converged, message = self._exchange_search(v, converged, message)
+        if converged and mirror and not frozen:
+            v, converged, message = self._mirrored_starts(v, converged, message)
+        return self._result(v, converged, message, self._total)
+
+    def _minimize(self, v0: np.ndarray) -> tuple[np.ndarray, bool, str]:
+        """One lmfit run from ``v0`` with the attachment followed along the eigenvectors."""
         import lmfit  # imported here: loading it costs about a second (scipy.stats, plotting)
 
+        n_var = len(self.variables)
         params = lmfit.Parameters()
         for j, var in enumerate(self.variables):
-            params.add(f"v{j}", value=float(self.v_start[j]), min=var.min, max=var.max)
-        n_var = len(self.variables)
+            params.add(f"v{j}", value=float(np.clip(v0[j], var.min, var.max)),
+                       min=var.min, max=var.max)
         state = {"calls": 0}
+        should_stop, progress = self._should_stop, self._progress
 
         def values(p) -> np.ndarray:
             return np.array([p[f"v{j}"].value for j in range(n_var)])
@@ -299,83 +333,319 @@ class FitProblem:
                 return True
             return False
 
-        total = 0
-        v = self.v_start
-        notes: list[str] = []
-        for _round in range(4):
-            for j in range(n_var):
-                params[f"v{j}"].value = float(np.clip(v[j], self.variables[j].min,
-                                                      self.variables[j].max))
-            mini = lmfit.Minimizer(residual, params, iter_cb=iter_cb)
-            with np.errstate(all="ignore"):
-                res = mini.minimize(
-                    method="least_squares",
-                    jac=jac,
-                    max_nfev=self.options.max_iterations,
-                    ftol=self.options.tolerance,
-                    xtol=self.options.tolerance,
-                    gtol=self.options.tolerance,
-                    x_scale="jac",
-                )
-            if state.get("cancelled"):
-                raise FitCancelled("fit cancelled")
-            v = values(res.params)
-            total += int(res.nfev)
-            # lmfit also 'aborts' when it runs out of evaluations: that is non-convergence
-            aborted = bool(getattr(res, "aborted", False))
-            converged = (
-                bool(res.success) and not aborted and res.nfev < self.options.max_iterations
+        mini = lmfit.Minimizer(residual, params, iter_cb=iter_cb)
+        with np.errstate(all="ignore"):
+            res = mini.minimize(
+                method="least_squares",
+                jac=jac,
+                max_nfev=self.options.max_iterations,
+                ftol=self.options.tolerance,
+                xtol=self.options.tolerance,
+                gtol=self.options.tolerance,
+                x_scale="jac",
             )
-            if not converged or not self.options.follow_eigenvectors:
-                break
-            # between fits the labels decide: re-attach labelled levels at the fitted values
-            moved = self._reattach_by_label(v)
-            if not moved:
-                break
-            notes.append(", ".join(moved))
-            params = res.params
-        message = (
-            "converged" if converged else f"did not converge after {total} evaluations "
-            f"({getattr(res, 'message', '')})"
+        if state.get("cancelled"):
+            raise FitCancelled("fit cancelled")
+        v = values(res.params)
+        self._total += int(res.nfev)
+        # lmfit also 'aborts' when it runs out of evaluations: that is non-convergence
+        aborted = bool(getattr(res, "aborted", False))
+        converged = bool(res.success) and not aborted and res.nfev < self.options.max_iterations
+        # the attachment at the returned point (the last Jacobian may be older)
+        self.evaluate(v, jacobian=False, commit=True)
+        message = "" if converged else (
+            f"the optimiser did not converge ({getattr(res, 'message', '')})"
         )
-        for n in notes:
-            self.warnings.append(
-                f"after a fit, levels {n} were re-attached by their labels and the fit repeated"
-            )
-        return self._result(v, converged, message, total)
+        return v, converged, message
 
-    def _reattach_by_label(self, v: np.ndarray) -> list[str]:
-        """Re-run the label attachment at ``v``; returns the ids of levels that moved."""
+    # ------------------------------------------------------------ attachment rounds
+    def _snapshot(self) -> dict:
+        return {k: (att.eigen_index.copy(), att.reference) for k, att in self.attachments.items()}
+
+    def _restore(self, snap: dict) -> None:
+        for k, (idx, ref) in snap.items():
+            att = self.attachments[k]
+            if ref is None:
+                att.eigen_index = idx.copy()
+                att.reference = None
+            else:
+                att.commit(idx.copy(), ref)
+        self._cache = {}
+
+    def _signature(self) -> tuple:
+        return tuple(
+            (k, tuple(int(i) for i in att.eigen_index))
+            for k, att in sorted(self.attachments.items())
+        )
+
+    def _chi2(self, v: np.ndarray) -> float:
+        e, _ = self.evaluate(v, jacobian=False, commit=False)
+        return float(np.sum(((e - self.obs) * self.sqrt_w) ** 2))
+
+    def _scale(self, v: np.ndarray) -> float:
+        """Energy scale of the global attachment: the present sigma, floored."""
+        e, _ = self.evaluate(v, jacobian=False, commit=False)
+        dof = max(len(self.included) - len(self.variables), 1)
+        sigma = math.sqrt(float(np.sum((e - self.obs) ** 2)) / dof)
+        floor = float(np.median(self.u)) if self.options.weighting == "uncertainty" else 1.0
+        return max(sigma, floor, 1e-3)
+
+    def _global_attachment(self, v: np.ndarray) -> dict:
+        """The global assignment of every block at ``v`` (not applied)."""
         x = self.x_of(v)
-        moved = []
+        scale = self._scale(v)
         lv_by_id = {lv.id: lv for lv in self.levels}
-        for (parity, j2), att in self.attachments.items():
+        out = {}
+        for key, att in self.attachments.items():
+            parity, j2 = key
             model = self.models[parity]
             b = next(bb for bb in model.blocks if bb.J2 == j2)
             eig = model.eigen_block(b, self._model_x(x, parity))
-            w, V = eig.energies, eig.vectors
-            idx = att.follow(V)
-            trial = []
-            for pos, lid in enumerate(att.level_ids):
-                lv = lv_by_id[lid].copy()
-                if isinstance(lv.state, int) or not (lv.label or lv.state):
-                    lv.state = int(idx[pos]) + 1  # keep where the fit took it
-                trial.append(lv)
-            cd = coupling_data(model)[j2]
-            new, _ = attach_block(trial, w, V, cd.ls_labels, b.state_config,
-                                  model.configurations, self.options.assignment)
-            changed = [att.level_ids[k] for k in np.flatnonzero(new != idx)]
-            if changed:
-                moved.extend(changed)
-            att.commit(new, V)
+            lvs = [lv_by_id[i] for i in att.level_ids]
+            new = global_attach_block(
+                lvs, eig.energies, eig.vectors, coupling_data(model), b.state_config,
+                model.configurations, att.eigen_index, scale,
+            )
+            out[key] = (new, eig.vectors)
+        return out
+
+    def _apply(self, attachment: dict) -> list[str]:
+        moved = []
+        for key, (idx, V) in attachment.items():
+            att = self.attachments[key]
+            moved.extend(att.level_ids[k] for k in np.flatnonzero(idx != att.eigen_index))
+            att.commit(idx, V)
+        self._cache = {}
         return moved
 
-    def report(self, message: str = "values as given (no fit)") -> FitResult:
-        """Statistics and levels at the settings' values, without fitting."""
-        return self._result(self.v_start, True, message, 0)
+    def _fit_to_fixed_point(self, v0: np.ndarray) -> tuple[np.ndarray, bool, str]:
+        seen: dict[tuple, tuple[float, np.ndarray, dict]] = {}
+        v = v0
+        for _round in range(8):
+            v, converged, message = self._minimize(v)
+            if not converged:
+                return v, False, message
+            if not self.options.follow_eigenvectors:
+                return v, True, "converged (attachment frozen)"
+            sig = self._signature()
+            contra = sum(
+                len(self._contradicts_label(k, a.eigen_index, v))
+                for k, a in self.attachments.items()
+            )
+            seen[sig] = (contra, self._sigma_of(v), v.copy(), self._snapshot())
+            attachment = self._global_attachment(v)
+            moved = self._apply(attachment)
+            if not moved:
+                return v, True, "converged"
+            if self._signature() in seen:
+                # the rounds oscillate between attachments: report them, keep the one that
+                # contradicts the fewest labels (then the lowest sigma)
+                competing = sorted(seen.values(), key=lambda t: (t[0], t[1]))
+                _, _, best_v, best_snap = competing[0]
+                self._restore(best_snap)
+                self.diagnoses.append(
+                    "re-attachment oscillates between "
+                    f"{len(competing)} attachments: "
+                    + "; ".join(
+                        f"sigma {c[1]:.4g} cm-1 with {c[0]} level(s) off their label"
+                        for c in competing
+                    )
+                    + f" (levels moving: {', '.join(sorted(set(moved)))}); kept the first; "
+                    "pin the levels (attach) to decide"
+                )
+                return best_v, False, "the attachment does not settle (oscillates)"
+            self.warnings.append(
+                "after a fit, levels " + ", ".join(moved)
+                + " were re-attached (labels and energies) and the fit repeated"
+            )
+        return v, False, "the attachment did not settle in 8 rounds"
+
+    # ------------------------------------------------------------ exchanges, mirrors
+    def _candidate_moves(self, v: np.ndarray, limit: int = 6) -> list[tuple[float, tuple, dict]]:
+        """Exchanges of two levels of one J, and moves of one level to a free state, that
+        lower chi-square at the present values (screened without a refit), best first."""
+        x = self.x_of(v)
+        row_of = {lv.id: i for i, lv in enumerate(self.included)}
+        e_now, _ = self.evaluate(v, jacobian=False, commit=False)
+        w2 = self.sqrt_w**2
+        out = []
+        for key, att in self.attachments.items():
+            parity, j2 = key
+            model = self.models[parity]
+            b = next(bb for bb in model.blocks if bb.J2 == j2)
+            energies = model.eigen_block(b, self._model_x(x, parity)).energies
+            idx = att.eigen_index
+            ids = att.level_ids
+            rows = [row_of.get(i) for i in ids]
+
+            def part(r, e):
+                return 0.0 if r is None else w2[r] * (self.obs[r] - e) ** 2
+
+            now = [part(rows[k], energies[idx[k]]) for k in range(len(ids))]
+            for a in range(len(ids)):
+                for c in range(a + 1, len(ids)):
+                    if rows[a] is None and rows[c] is None:
+                        continue
+                    d = (part(rows[a], energies[idx[c]]) + part(rows[c], energies[idx[a]])
+                         - now[a] - now[c])
+                    if d < 0:
+                        new = idx.copy()
+                        new[a], new[c] = idx[c], idx[a]
+                        out.append((d, (ids[a], ids[c]), {key: new}))
+            free = sorted(set(range(energies.size)) - set(int(i) for i in idx))
+            for a in range(len(ids)):
+                if rows[a] is None:
+                    continue
+                for f in free:
+                    d = part(rows[a], energies[f]) - now[a]
+                    if d < 0:
+                        new = idx.copy()
+                        new[a] = f
+                        out.append((d, (ids[a],), {key: new}))
+        out.sort(key=lambda t: t[0])
+        return out[:limit]
+
+    def _contradicts_label(self, key, new_idx: np.ndarray, v: np.ndarray) -> list[str]:
+        """Levels whose label the attachment ``new_idx`` of block ``key`` would contradict."""
+        parity, j2 = key
+        model = self.models[parity]
+        b = next(bb for bb in model.blocks if bb.J2 == j2)
+        eig = model.eigen_block(b, self._model_x(self.x_of(v), parity))
+        lv_by_id = {lv.id: lv for lv in self.levels}
+        lvs = [lv_by_id[i] for i in self.attachments[key].level_ids]
+        _, ok = label_compatibility(lvs, eig.vectors, coupling_data(model))
+        return [lv.id for k, lv in enumerate(lvs) if lv.label and not ok[k, new_idx[k]]]
+
+    def _exchange_search(self, v, converged, message):
+        """Keep exchanges (and moves to free states) that lower chi-square after a refit."""
+        chi2 = self._chi2(v)
+        proposed: set[tuple] = set()
+        for _pass in range(6):
+            improved = False
+            for _d, who, change in self._candidate_moves(v):
+                if who in proposed:
+                    continue
+                (key, new_idx), = change.items()
+                base = self._snapshot()
+                att = self.attachments[key]
+                att.commit(new_idx, att.reference)
+                self._cache = {}
+                try:
+                    # the trial attachment is held (followed along the eigenvectors only)
+                    v_new, conv_new, msg_new = self._minimize(v)
+                except FinefitError:
+                    self._restore(base)
+                    continue
+                chi2_new = self._chi2(v_new)
+                if conv_new and chi2_new < chi2 * (1 - 1e-6) - 1e-12:
+                    bad = [
+                        lid for k2, a2 in self.attachments.items()
+                        for lid in self._contradicts_label(k2, a2.eigen_index, v_new)
+                    ]
+                    if bad:
+                        sigma_after = self._sigma_of(v_new)
+                        self._restore(base)
+                        self.suspected.append((*who, sigma_after) if len(who) == 2
+                                              else (who[0], "", sigma_after))
+                        proposed.add(who)
+                        continue
+                    self.warnings.append(
+                        ("exchanged the states of levels " + " and ".join(who))
+                        if len(who) == 2 else f"moved level {who[0]} to another state"
+                    )
+                    self.warnings[-1] += (
+                        f": chi-square {chi2:.6g} -> {chi2_new:.6g} after a refit"
+                    )
+                    v_settled, conv_settled, msg_settled = self._fit_to_fixed_point(v_new)
+                    if not conv_settled:
+                        converged, message = False, msg_settled
+                    v, chi2 = v_settled, self._chi2(v_settled)
+                    improved = True
+                    break
+                self._restore(base)
+                proposed.add(who)
+            if not improved:
+                break
+        self.evaluate(v, jacobian=False, commit=True)
+        return v, converged, message
+
+    def _mirrored_starts(self, v, converged, message):
+        """Refit from the mirrored sign of spin-orbit parameters the data may leave open.
+
+        A zeta that came out negative, or whose error is large against its value, is
+        flipped and the fit repeated; a lower minimum is kept (and said), a different one
+        of similar chi-square is reported as a second minimum.
+        """
+        names = [var.name for var in self.variables]
+        kinds = {sp.name: sp.kind for m in self.models.values() for sp in m.parameter_specs}
+        try:
+            e, J = self.evaluate(v, jacobian=True, commit=False)
+            Jw = J * self.sqrt_w[:, None]
+            cov = np.linalg.pinv(Jw.T @ Jw)
+            dof = max(len(self.included) - len(self.variables), 1)
+            cov *= float(np.sum(((e - self.obs) * self.sqrt_w) ** 2)) / dof
+            err = np.sqrt(np.clip(np.diag(cov), 0, None))
+        except np.linalg.LinAlgError:
+            return v, converged, message
+        chi2 = self._chi2(v)
+        for j, name in enumerate(names):
+            if kinds.get(name) != "zeta":
+                continue
+            if not (v[j] < 0 or err[j] > 0.3 * abs(v[j])):
+                continue
+            start = v.copy()
+            start[j] = -start[j] if start[j] != 0 else err[j]
+            base = self._snapshot()
+            x_save = self.x_start
+            try:
+                self._attach_at(start)
+                v2, conv2, _ = self._fit_to_fixed_point(start)
+            except FinefitError:
+                self._restore(base)
+                continue
+            finally:
+                self.x_start = x_save
+            chi2_2 = self._chi2(v2)
+            if conv2 and chi2_2 < chi2 * (1 - 1e-6) - 1e-12:
+                self.diagnoses.append(
+                    f"{name}: the start with the opposite sign reached a lower minimum "
+                    f"({self._sigma_of(v):.4g} -> {self._sigma_of(v2):.4g} cm-1), kept"
+                )
+                v, chi2 = v2, chi2_2
+                continue
+            if conv2 and abs(v2[j] - v[j]) > 2 * max(err[j], 1e-9) and np.sign(v2[j]) != np.sign(
+                v[j]
+            ):
+                self.diagnoses.append(
+                    f"{name}: a second minimum with the opposite sign ({v2[j]:.4g}) at sigma "
+                    f"{self._sigma_of(v2):.4g} cm-1 (this one: {v[j]:.4g} at "
+                    f"{self._sigma_of(v):.4g}); the data leave its sign open"
+                )
+            self._restore(base)
+        self.evaluate(v, jacobian=False, commit=True)
+        return v, converged, message
+
+    def _attach_at(self, v: np.ndarray) -> None:
+        """Initial attachment (labels, then energy order) at the values of ``v``."""
+        x = self.x_of(v)
+        self.x_start = x
+        self._attach()
+
+    def _sigma_of(self, v: np.ndarray) -> float:
+        e, _ = self.evaluate(v, jacobian=False, commit=False)
+        dof = max(len(self.included) - len(self.variables), 1)
+        return math.sqrt(float(np.sum((e - self.obs) ** 2)) / dof)
+
+    def report(self, message: str = "not fitted: values as given") -> FitResult:
+        """Statistics and levels at the settings' values, without fitting (never converged)."""
+        self.suspected = []
+        self.diagnoses = []
+        return self._result(self.v_start, False, message, 0, fitted=False)
 
     # ------------------------------------------------------------------ results
-    def _result(self, v: np.ndarray, converged: bool, message: str, nfev: int) -> FitResult:
+    def _result(
+        self, v: np.ndarray, converged: bool, message: str, nfev: int, fitted: bool = True
+    ) -> FitResult:
         e, J = self.evaluate(v, jacobian=True, commit=True)
         x = self.x_of(v)
         resid = self.obs - e
@@ -392,6 +662,7 @@ class FitProblem:
             status[nme] = "linked" if (s.link and np.any(self.chain[i])) else (
                 "varied" if np.any(self.chain[i]) else "fixed")
         errors_v, undetermined, at_bound, corr, note = self._covariance(v, J, resid, dof, warnings)
+        self._corr_v = corr
         cov_v = self._cov_v
         errors = {nme: 0.0 for nme in self.names}
         for j, var in enumerate(self.variables):
@@ -429,9 +700,26 @@ class FitProblem:
                 "the data do not determine: " + ", ".join(undetermined_names)
                 + " (fix or link them)"
             )
-        if not converged:
-            warnings.append("the fit did not converge: " + message)
+        warnings.extend(getattr(self, "diagnoses", []))
+        warnings.extend(self._range_warnings(values, kinds, status))
+        weak = self._weakly_determined(errors, values, status, undetermined_names)
+        if weak:
+            warnings.append(
+                "poorly determined (error larger than the value, or |correlation| > 0.999 "
+                "with another): " + ", ".join(weak) + " (fix or link them)"
+            )
+            undetermined_names = undetermined_names + weak
         rows, preds, sols = self._levels(x, cov_v)
+        fixed_point = (
+            self._is_fixed_point(v, rows)
+            if fitted and self.options.follow_eigenvectors
+            else True
+        )
+        if fitted and not fixed_point:
+            converged = False
+            message = "the attachment is not a fixed point at the fitted values"
+        if fitted and not converged:
+            warnings.append("the fit did not converge: " + message)
         mismatched = [r.id for r in rows if r.label_mismatch]
         if mismatched:
             warnings.append(
@@ -444,7 +732,99 @@ class FitProblem:
             correlation=(var_names, corr), strong_correlations=strong, levels=rows,
             predictions=preds, warnings=warnings, undetermined=undetermined_names,
             included_ids=[lv.id for lv in self.included], covariance_note=note, solutions=sols,
+            suspected_swaps=list(getattr(self, "suspected", [])), fitted=fitted,
+            fixed_point=fixed_point,
+            next_steps=self._next_steps(rows, undetermined_names, fitted, converged),
         )
+
+    # ------------------------------------------------------------------ diagnosis
+    RATIO_RANGES = {  # fitted / Hartree-Fock, the trade's usual ranges (common practice)
+        "F": (0.5, 1.2), "G": (0.5, 1.2), "R": (0.5, 1.2), "zeta": (0.7, 1.3),
+    }
+
+    def _range_warnings(self, values, kinds, status) -> list[str]:
+        out = []
+        for name, value in values.items():
+            kind = kinds.get(name)
+            if status.get(name) == "fixed":
+                continue
+            if kind == "zeta" and value < 0:
+                out.append(f"{name} = {value:.4g} is negative: spin-orbit parameters are "
+                           "positive (check the attachment or the sign of the start)")
+                continue
+            ab = self.settings[name].ab_initio
+            lo_hi = self.RATIO_RANGES.get(kind)
+            if lo_hi and ab:
+                r = value / ab
+                if not lo_hi[0] <= r <= lo_hi[1]:
+                    out.append(
+                        f"{name}: fitted / ab initio = {r:.3g}, outside the usual "
+                        f"{lo_hi[0]}-{lo_hi[1]} (common practice; a warning, not an error)"
+                    )
+        return out
+
+    def _weakly_determined(self, errors, values, status, known) -> list[str]:
+        out = []
+        names, corr = [var.name for var in self.variables], None
+        for _j, var in enumerate(self.variables):
+            nm = var.name
+            if nm in known or status.get(nm) in ("fixed", "at bound", "undetermined"):
+                continue
+            err = errors.get(nm, 0.0)
+            if math.isfinite(err) and err > abs(values[nm]) and err > 0:
+                out.append(nm)
+        corr = getattr(self, "_corr_v", None)
+        if corr is not None:
+            n = corr.shape[0]
+            for a in range(n):
+                for b in range(a + 1, n):
+                    if abs(corr[a, b]) > 0.999:
+                        for k in (a, b):
+                            if names[k] not in out and names[k] not in known:
+                                out.append(names[k])
+        return out
+
+    def _is_fixed_point(self, v: np.ndarray, rows) -> bool:
+        """Re-solve at ``v``: the attached states give the reported E_calc, and a fresh
+        global attachment keeps every level where it is."""
+        calc = {r.id: r.energy_calc for r in rows}
+        x = self.x_of(v)
+        for key, att in self.attachments.items():
+            parity, j2 = key
+            model = self.models[parity]
+            b = next(bb for bb in model.blocks if bb.J2 == j2)
+            eig = model.eigen_block(b, self._model_x(x, parity))
+            for k, lid in enumerate(att.level_ids):
+                if abs(eig.energies[att.eigen_index[k]] - calc[lid]) > 1e-6 * max(
+                    1.0, abs(calc[lid])
+                ):
+                    return False
+        fresh = self._global_attachment(v)
+        return all(
+            np.array_equal(idx, self.attachments[k].eigen_index) for k, (idx, _) in fresh.items()
+        )
+
+    def _next_steps(self, rows, undetermined, fitted, converged) -> list[str]:
+        out = []
+        if not fitted:
+            out.append("these are the values as given: run a fit to adjust them")
+        mism = [r.id for r in rows if r.label_mismatch]
+        if mism:
+            out.append("labels that disagree with the attached state: " + ", ".join(mism)
+                       + " (check the label, or attach the level by hand)")
+        for a, b, sg in getattr(self, "suspected", []):
+            if b:
+                out.append(f"exchanging {a} and {b} gives sigma {sg:.4g} but contradicts a "
+                           f"label: check both assignments")
+            else:
+                out.append(f"moving {a} to another state gives sigma {sg:.4g} but contradicts "
+                           "its label")
+        if undetermined:
+            out.append("fix or link parameters the data do not determine: "
+                       + ", ".join(undetermined))
+        if fitted and not converged:
+            out.append("the fit is not converged: do not use these values as a result")
+        return out
 
     def _covariance(self, v, J, resid, dof, warnings):
         n_free = len(self.variables)
@@ -522,6 +902,7 @@ class FitProblem:
         for parity, model in self.models.items():
             sol = model.solve(self._model_x(x, parity))
             sols[parity] = sol
+            coupling = coupling_data(model)
             by_pos = {(lev.block, lev.position): lev for lev in sol.levels}
             attached: dict[tuple[int, int], str] = {}
             for (p, j2), att in self.attachments.items():
@@ -543,9 +924,13 @@ class FitProblem:
                 if key in attached:
                     lid = attached[key]
                     obs = lv_by_id[lid]
-                    mismatch = bool(obs.label) and (
-                        match_label(obs.label, [lev.label], obs.J) is None
-                    )
+                    mismatch = False
+                    if obs.label:
+                        target = resolve_label(coupling, obs.label, obs.J)
+                        vec = sol.eigenvector(lev)
+                        mismatch = leading_row(coupling[lev.block], target.scheme, vec) != (
+                            target.row
+                        )
                     rows.append(
                         LevelRow(
                             id=lid, J=lev.J, parity=parity, energy_obs=obs.energy,

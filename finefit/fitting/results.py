@@ -78,6 +78,13 @@ class FitResult:
     included_ids: list[str]
     covariance_note: str = ""
     solutions: dict = field(default_factory=dict, repr=False)
+    # exchanges of two levels (or a move of one, second id "") that lower chi-square but
+    # contradict a label: proposed, not applied; with the sigma after the refit
+    suspected_swaps: list[tuple[str, str, float]] = field(default_factory=list)
+    fitted: bool = True  # False for a report at given values (no fit was made)
+    fixed_point: bool = True  # re-solving at the values with the states reproduces E_calc
+    next_steps: list[str] = field(default_factory=list)  # "what to check next", plain words
+    starts: tuple[int, int] | None = None  # (starts that reached this minimum, starts made)
 
     def level(self, level_id: str) -> LevelRow:
         return next(r for r in self.levels if r.id == level_id)
@@ -143,4 +150,14 @@ class FitResult:
             ],
             "warnings": list(self.warnings),
             "undetermined": list(self.undetermined),
+            "suspected_swaps": [
+                {"levels": [a, b] if b else [a], "sigma_after": num(sg)}
+                for a, b, sg in self.suspected_swaps
+            ],
+            "fitted": self.fitted,
+            "fixed_point": self.fixed_point,
+            "next_steps": list(self.next_steps),
+            "starts": None if self.starts is None else {
+                "reached": self.starts[0], "made": self.starts[1]
+            },
         }

@@ -4,8 +4,8 @@ For each configuration a configuration-average Hartree-Fock run (finefit.radial)
 gives E_av, F^k, G^k and zeta; R^k between two configurations uses each
 configuration's own orbitals. Starting values are the ab initio values times scale
 factors: 0.85 for F^k, G^k and R^k and 1.0 for zeta by default (# common practice:
-Slater integrals of free ions typically fit at 0.8-0.9 of their Hartree-Fock values,
-Cowan 1981 §16). E_av keeps the ab initio differences between configurations, shifted
+Slater integrals of free ions typically fit at 0.8-0.9 of their Hartree-Fock values).
+E_av keeps the ab initio differences between configurations, shifted
 as a whole so that the lowest computed level falls on the lowest observed level (or 0).
 The Trees correction has no ab initio value and is left as it is.
 """

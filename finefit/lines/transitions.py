@@ -6,7 +6,7 @@ matrices (one per pair of subshells, from the determinant bases of both models)
 times radial dipole integrals. With both bases taken at M_J = J, the reduced element
 follows from Wigner-Eckart: <J M|D_q|J' M'> = (-1)^(J-M) (J 1 J'; -M q M') <J||D||J'>.
 S = |<J||D||J'>|^2 in (e a0)^2 when the radial integrals are in bohr (Condon &
-Shortley 1935; Cowan 1981, ch. 14).
+Shortley 1935; Sobelman 1979, the chapter on radiative transitions).
 """
 
 from __future__ import annotations
@@ -189,6 +189,9 @@ class PredictedLine:
     A: float  # transition probability upper -> lower, s^-1
     wavenumber_uncertainty: float | None = None  # cm^-1, from the level uncertainties
     wavelength_uncertainty: float | None = None  # angstrom (vacuum; air differs by < 0.03 %)
+    source: str = "calc"  # "Ritz": both levels observed; "obs/calc": one; "calc": neither
+    lower_id: str | None = None  # observed level ids, where observed
+    upper_id: str | None = None
 
 
 def predict_lines(
@@ -199,8 +202,18 @@ def predict_lines(
     min_strength: float = 0.0,
     level_uncertainty=None,
     air_range: tuple[float, float] = (2000.0, 20000.0),
+    observed=None,
+    ritz_uncertainty=None,
 ) -> list[PredictedLine]:
     """Lines between two solutions, strongest first.
+
+    ``observed(level)`` gives (id, energy, uncertainty) of the observed level attached to
+    a computed level, or None: where both levels of a line are observed its wavenumber is
+    the Ritz value E_up - E_lo of the observed energies (uncertainty from
+    ``ritz_uncertainty(lower id, upper id)`` when it knows the pair, e.g. from the
+    covariance of a level optimisation, else the two in quadrature); where one is
+    observed, that level's observed energy is combined with the other's calculated one.
+    gf and A use the wavenumber given.
 
     ``level_uncertainty(level)`` gives each level's energy uncertainty (cm^-1); the two
     levels of a line belong to sets of opposite parity with their own parameters, so
@@ -208,7 +221,7 @@ def predict_lines(
     ``air_range`` (angstrom; default 200 nm to 2 um, common practice), None outside.
 
     gf = (2/3) dE S and A = (4/3) alpha^3 dE^3 S / g_upper in atomic units (dE in hartree,
-    S in (e a0)^2; Cowan 1981, ch. 14); constants from scipy.constants.
+    S in (e a0)^2; Bethe & Salpeter 1957; Sobelman 1979); constants from scipy.constants.
     """
     from scipy.constants import fine_structure, physical_constants
 
@@ -221,26 +234,38 @@ def predict_lines(
         if S <= min_strength:
             continue
         lower, upper = (la, lb) if la.energy < lb.energy else (lb, la)
-        sigma = upper.energy - lower.energy
+        obs_lo = observed(lower) if observed is not None else None
+        obs_up = observed(upper) if observed is not None else None
+        e_lo = lower.energy if obs_lo is None else obs_lo[1]
+        e_up = upper.energy if obs_up is None else obs_up[1]
+        sigma = e_up - e_lo
         if sigma <= 0:
             continue
+        source = {2: "Ritz", 1: "obs/calc", 0: "calc"}[(obs_lo is not None) + (obs_up is not None)]
         de = sigma / hartree_cm
         g_up = 2 * upper.J + 1
         lam = 1e8 / sigma
         air, in_air = reported_wavelength(lam, air_from=air_range[0], air_to=air_range[1])
         du = dl = None
-        if level_uncertainty is not None:
-            ul, uu = level_uncertainty(lower), level_uncertainty(upper)
-            if ul is not None and uu is not None:
-                du = float(np.hypot(ul, uu))
-                dl = lam**2 * du / 1e8
+        ul = obs_lo[2] if obs_lo is not None else (
+            level_uncertainty(lower) if level_uncertainty is not None else None)
+        uu = obs_up[2] if obs_up is not None else (
+            level_uncertainty(upper) if level_uncertainty is not None else None)
+        if source == "Ritz" and ritz_uncertainty is not None:
+            du = ritz_uncertainty(obs_lo[0], obs_up[0])
+        if du is None and ul is not None and uu is not None:
+            du = float(np.hypot(ul, uu))
+        if du is not None:
+            dl = lam**2 * du / 1e8
         out.append(
             PredictedLine(
                 lower=lower, upper=upper, wavenumber=sigma, vacuum_wavelength=lam,
                 air_wavelength=float(air) if in_air else None, S=S,
                 gf=2.0 / 3.0 * de * S,
                 A=4.0 / 3.0 * fine_structure**3 * de**3 * S / g_up / t_au,
-                wavenumber_uncertainty=du, wavelength_uncertainty=dl,
+                wavenumber_uncertainty=du, wavelength_uncertainty=dl, source=source,
+                lower_id=None if obs_lo is None else obs_lo[0],
+                upper_id=None if obs_up is None else obs_up[0],
             )
         )
     out.sort(key=lambda x: -x.gf)

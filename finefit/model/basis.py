@@ -35,10 +35,12 @@ from finefit.angular.operators import (
     lplus_terms,
     pairing_terms,
     splus_terms,
+    subshell_casimir_terms,
 )
 from finefit.angular.wigner import clebsch_gordan2
 from finefit.errors import FinefitError
 from finefit.notation.configuration import Configuration, parse_configuration
+from finefit.notation.terms import subshell_term_counts
 
 # Running indices of repeated terms of equal seniority are ordered by the energy of
 # this reference electrostatic operator of the subshell (weights of F^k, k = 2, 4, 6).
@@ -122,12 +124,21 @@ def estimate_size(
 
 @dataclass(frozen=True)
 class SubshellTerm:
-    """The term of one open subshell: L, 2S, seniority v and a running index (0 = unique)."""
+    """The term of one open subshell: L, 2S, seniority v and its repeated-term index.
+
+    ``index`` is the index the level compilations give a term that occurs more than
+    once in l^N (Nielson & Koster 1963): the copies of one LS term numbered 1, 2, ...
+    in the order of seniority v, then (f shells) Racah's SO(7) label W, then the G2
+    label U; 0 for a term that occurs once. ``w`` and ``u`` are Racah's labels
+    (empty where they were not needed to tell copies apart).
+    """
 
     L: int
     S2: int
     seniority: int
     index: int = 0
+    w: tuple[int, ...] = ()
+    u: tuple[int, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -421,13 +432,44 @@ class Basis:
                         new_groups.append(g[start:i])
                         start = i
             groups = new_groups
+        # f shells: copies of a term with equal seniority are told apart by Racah's SO(7)
+        # and G2 labels W and U (only built where such copies remain degenerate)
+        if any(g.size > 1 for g in groups):
+            for pos, s in enumerate(shells):
+                l = self.shells[s][1]
+                if l != 3 or info.occupancy[s] in (1, 4 * l + 1):
+                    continue
+                for kind, group in (("W", "SO"), ("U", "G2")):
+                    key = (s, group)
+                    if key not in pairing_cache:
+                        pairing_cache[key] = subshell_casimir_terms(so, s, group)
+                    one, two = pairing_cache[key]
+                    blk = self.block(L, S2)
+                    M = two_body(blk, two)[0] + one_body(blk, blk, one)
+                    op = V.T @ (M @ V)
+                    ops.append((kind, pos, op))
+                    new_groups = []
+                    for g in groups:
+                        if g.size == 1:
+                            new_groups.append(g)
+                            continue
+                        sub = R[:, g].T @ op @ R[:, g]
+                        w, U = np.linalg.eigh((sub + sub.T) / 2)
+                        R[:, g] = R[:, g] @ U
+                        start = 0
+                        for i in range(1, g.size + 1):
+                            if i == g.size or w[i] - w[i - 1] > 1e-6:
+                                new_groups.append(g[start:i])
+                                start = i
+                    groups = new_groups
         # diagonal of R^T op R as one matrix product (a three-operand einsum is ~10x slower)
         qn = {(k, p): np.sum(R * (op @ R), axis=0) for k, p, op in ops}
         index_of = np.zeros(n, dtype=int)
         for g in groups:
             if g.size == 1:
                 continue
-            # repeated terms of equal seniority: order by the reference electrostatic operator
+            # copies still degenerate (f shells beyond what v, W, U separate): order them by
+            # the reference electrostatic operator of the subshell
             tie = np.zeros((n, n))
             for pos, s in enumerate(shells):
                 for cls_i, cls in enumerate(self.integral_classes):
@@ -442,37 +484,47 @@ class Basis:
             R[:, g] = R[:, g] @ U
             index_of[g] = np.arange(1, g.size + 1)
         Vout = V @ R
+        caps = [4 * self.shells[s][1] + 2 for s in shells]
+        repeated = [
+            p for p, s in enumerate(shells) if info.occupancy[s] not in (1, caps[p] - 1)
+        ]
+        tie_pos = repeated[0] if repeated else 0
+        raw = []  # per state: per position (L, 2S, v, W, U, tie rank)
+        for i in range(n):
+            terms = []
+            for pos, s in enumerate(shells):
+                l = self.shells[s][1]
+                n_el = info.occupancy[s]
+                if n_el in (1, 4 * l + 1):
+                    terms.append((l, 1, 1, (), (), 0))
+                    continue
+                Ls = _casimir_value(qn[("L", pos)][i])
+                S2s = _casimir_value2(qn[("S", pos)][i])
+                v = _seniority(qn[("v", pos)][i], l, n_el) if l >= 2 else _p_seniority(Ls, S2s)
+                w = _r7_label(qn[("W", pos)][i]) if ("W", pos) in qn else ()
+                u = _g2_label(qn[("U", pos)][i]) if ("U", pos) in qn else ()
+                terms.append((Ls, S2s, v, w, u, int(index_of[i]) if pos == tie_pos else 0))
+            raw.append(terms)
         labels = []
         for i in range(n):
             terms, inter = [], []
             for pos, s in enumerate(shells):
                 l = self.shells[s][1]
                 n_el = info.occupancy[s]
-                if n_el in (1, 4 * l + 1):
-                    terms.append(SubshellTerm(l, 1, 1, 0))
-                    continue
-                Ls = _casimir_value(qn[("L", pos)][i])
-                S2s = _casimir_value2(qn[("S", pos)][i])
-                v = _seniority(qn[("v", pos)][i], l, n_el) if l >= 2 else _p_seniority(Ls, S2s)
-                terms.append(SubshellTerm(Ls, S2s, v, 0))
+                Ls, S2s, v, w, u, tie_rank = raw[i][pos]
+                index = 0
+                if n_el not in (1, 4 * l + 1) and subshell_term_counts(l, n_el)[(Ls, S2s)] > 1:
+                    # the copies of this subshell term all occur in this block (their coupling
+                    # to the rest depends only on L and S): rank among them
+                    keys = sorted(
+                        {raw[j][pos][2:] for j in range(n) if raw[j][pos][:2] == (Ls, S2s)}
+                    )
+                    index = keys.index(raw[i][pos][2:]) + 1
+                terms.append(SubshellTerm(Ls, S2s, v, index, w, u))
             for pos in range(1, len(shells) - 1):
                 inter.append(
                     (_casimir_value(qn[("Lc", pos)][i]), _casimir_value2(qn[("Sc", pos)][i]))
                 )
-            if index_of[i]:
-                # the running index belongs to the subshell whose term repeats; with one
-                # open subshell that is the only one, otherwise the first non-unique one
-                pos = next(
-                    (
-                        p
-                        for p, s in enumerate(shells)
-                        if info.occupancy[s] not in (1, 4 * self.shells[s][1] + 1)
-                    ),
-                    0,
-                )
-                if terms:
-                    t = terms[pos]
-                    terms[pos] = SubshellTerm(t.L, t.S2, t.seniority, int(index_of[i]))
             labels.append(LSState(info.index, tuple(terms), tuple(inter), L, S2))
         return Vout, labels
 
@@ -558,6 +610,34 @@ class Basis:
     def integral_class_name(self, cls: IntegralClass) -> str:
         n = self.shell_names
         return f"R{cls.k}({n[cls.pair1[0]]}{n[cls.pair1[1]]};{n[cls.pair2[0]]}{n[cls.pair2[1]]})"
+
+
+def _lookup(x: float, table: dict[tuple[int, ...], float], what: str) -> tuple[int, ...]:
+    for label, value in table.items():
+        if abs(value - x) < 1e-6:
+            return label
+    raise FinefitError(f"no {what} label has Casimir eigenvalue {x:.6f}", what)  # never expected
+
+
+# Casimir eigenvalues of the SO(7) and G2 irreducible representations of f^N
+# (CONVENTIONS.md; Racah 1949, Phys. Rev. 76, 1352; Wybourne 1965)
+_R7 = {
+    w: (w[0] * (w[0] + 5) + w[1] * (w[1] + 3) + w[2] * (w[2] + 1)) / 10.0
+    for w in [(0, 0, 0), (1, 0, 0), (1, 1, 0), (2, 0, 0), (1, 1, 1), (2, 1, 0), (2, 1, 1),
+              (2, 2, 0), (2, 2, 1), (2, 2, 2)]
+}
+_G2 = {
+    u: (u[0] ** 2 + u[0] * u[1] + u[1] ** 2 + 5 * u[0] + 4 * u[1]) / 12.0
+    for u in [(0, 0), (1, 0), (1, 1), (2, 0), (2, 1), (2, 2), (3, 0), (3, 1), (4, 0)]
+}
+
+
+def _r7_label(x: float) -> tuple[int, ...]:
+    return _lookup(x, _R7, "SO(7)")
+
+
+def _g2_label(x: float) -> tuple[int, ...]:
+    return _lookup(x, _G2, "G2")
 
 
 def _casimir_value(x: float) -> int:

@@ -35,11 +35,15 @@ from finefit.model.basis import (
 from finefit.model.solution import lande_g_ls
 from finefit.notation.jvalues import format_angular
 from finefit.notation.labels import SubshellPart, format_jj, format_ls
-from finefit.notation.terms import term_symbol
+from finefit.notation.terms import seniority_copies, term_symbol
 from finefit.threads import with_engine_threads
 
 
-def ls_label(basis: Basis, state: LSState) -> str:
+def ls_label(basis: Basis, state: LSState, explicit: bool = False) -> str:
+    """The LS label of a basis state, repeated terms with their compilation index.
+
+    ``explicit`` adds finefit's explicit quantum numbers (``3d7 2D2{v3}``).
+    """
     info = basis.configs[state.config]
     parts = []
     k = 0
@@ -47,11 +51,13 @@ def ls_label(basis: Basis, state: LSState) -> str:
         if s.is_open and s.name in basis.shell_names:
             t = state.subshell_terms[k]
             k += 1
-            parts.append(SubshellPart(s.name, s.occupancy, s.l, t.L, t.S2, t.seniority, t.index))
+            parts.append(
+                SubshellPart(s.name, s.occupancy, s.l, t.L, t.S2, t.seniority, t.index, t.w, t.u)
+            )
         else:
             parts.append(SubshellPart(s.name, s.occupancy, s.l))
     odd = info.configuration.parity == "odd"
-    return format_ls(parts, list(state.intermediates), state.L, state.S2, odd)
+    return format_ls(parts, list(state.intermediates), state.L, state.S2, odd, explicit)
 
 
 class _Casimirs:
@@ -122,14 +128,18 @@ def _two_j(x: float) -> int:
 class BlockCoupling:
     """Labels and basis changes of one J block.
 
-    LS labels and g are made with the block; the jj and pair-coupling (JK) bases are
-    built the first time a composition in that scheme is asked for (they cost as
-    much as the rest of the model and only displays need them).
+    LS labels (also in the explicit form with Racah's quantum numbers) and g are made
+    with the block; the jj, pair-coupling (JK) and J1j bases are built the first time
+    a composition or a label in that scheme is asked for (they cost as much as the
+    rest of the model and only displays and labels in those schemes need them).
     """
 
-    def __init__(self, model, b, ls_labels: list[str], g_ls: np.ndarray) -> None:
+    def __init__(
+        self, model, b, ls_labels: list[str], g_ls: np.ndarray, ls_explicit: list[str]
+    ) -> None:
         self.J2: int = b.J2
         self.ls_labels = ls_labels
+        self.ls_explicit = ls_explicit
         self.g_ls = g_ls
         self.state_config: np.ndarray = b.state_config
         self._model = model
@@ -143,6 +153,7 @@ class BlockCoupling:
         )
         self._jj: tuple[list[str], np.ndarray] | None = None
         self._jk: tuple[list[str], np.ndarray] | None = None
+        self._j1j: tuple[list[str], np.ndarray] | None = None
 
     @property
     def jj_labels(self) -> list[str]:
@@ -174,6 +185,18 @@ class BlockCoupling:
                 self._jk = (list(self.ls_labels), np.eye(self._block.size))
         return self._jk
 
+    @property
+    def j1j_labels(self) -> list[str]:
+        return self._j1j_basis()[0]
+
+    def _j1j_basis(self) -> tuple[list[str], np.ndarray]:
+        if self._j1j is None:
+            if self.has_jk:
+                self._j1j = _scheme_basis(self._model, self._block, self.ls_labels, "J1j")
+            else:
+                self._j1j = (list(self.ls_labels), np.eye(self._block.size))
+        return self._j1j
+
     def scheme_basis(self, name: str) -> tuple[list[str], np.ndarray | None]:
         """Labels and basis change (None for LS, the identity) of a scheme."""
         key = name.lower()
@@ -183,9 +206,11 @@ class BlockCoupling:
             return self._jj_basis()
         if key in ("jk", "pair"):
             return self._jk_basis()
+        if key == "j1j":
+            return self._j1j_basis()
         from finefit.errors import FinefitError
 
-        raise FinefitError(f"unknown coupling scheme {name!r}: use LS, jj or JK", name)
+        raise FinefitError(f"unknown coupling scheme {name!r}: use LS, jj, JK or J1j", name)
 
     def scheme(self, name: str, v: np.ndarray) -> tuple[list[str], np.ndarray]:
         labels, U = self.scheme_basis(name)
@@ -206,15 +231,16 @@ def coupling_data(model) -> dict[int, BlockCoupling]:
     for b in model.blocks:
         states = [basis.ls_states[i] for i in b.state_index]
         ls = [ls_label(basis, st) for st in states]
+        explicit = [ls_label(basis, st, explicit=True) for st in states]
         g = np.array([lande_g_ls(st.L, st.S2, b.J2) for st in states])
-        out[b.J2] = BlockCoupling(model, b, ls, g)
+        out[b.J2] = BlockCoupling(model, b, ls, g, explicit)
     model._coupling_cache = out
     return out
 
 
 @with_engine_threads
 def _scheme_basis(model, b, ls: list[str], scheme: str) -> tuple[list[str], np.ndarray]:
-    """The jj (``scheme = "jj"``) or pair-coupling basis of one J block, per configuration."""
+    """The jj (``scheme = "jj"``), pair-coupling (``"JK"``) or J1j basis of one J block."""
     basis: Basis = model.basis
     jb = basis.j_blocks[b.J2]
     states = [basis.ls_states[i] for i in b.state_index]
@@ -232,7 +258,7 @@ def _scheme_basis(model, b, ls: list[str], scheme: str) -> tuple[list[str], np.n
         if scheme == "jj":
             res = _jj_basis(basis, info, sub, tie, b.J2)
         else:
-            res = _jk_basis(basis, info, sub, tie, [states[r] for r in rows], b.J2)
+            res = _jk_basis(basis, info, sub, tie, [states[r] for r in rows], b.J2, scheme)
         if res is None:
             continue
         R, labs = res
@@ -313,7 +339,12 @@ def _jj_basis(basis: Basis, info, cas: _Casimirs, tie: np.ndarray, J2: int):
     return R, labels
 
 
-def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2: int):
+def _jk_basis(
+    basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2: int, mode: str = "JK"
+):
+    """Core (all open subshells but the last, one electron) in LS with J_c; then pair coupling
+    K = J_c + l, J = K + s (``mode="JK"``, Racah 1942), or J1j coupling J = J_c + j of the
+    outer electron (``mode="J1j"``)."""
     shells = list(info.open_shells)
     if len(shells) < 2 or info.occupancy[shells[-1]] != 1:
         return None
@@ -343,8 +374,15 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
     jc_p = lplus_terms(so, core) + splus_terms(so, core)
     ops.append(cas.vector_casimir(jc_z, jc_p))
     keys.append(("Jc",))
-    ops.append(cas.vector_casimir(jc_z + lz_terms(so, [outer]), jc_p + lplus_terms(so, [outer])))
-    keys.append(("K",))
+    outer_l = basis.shells[outer][1]
+    if mode == "JK":
+        ops.append(
+            cas.vector_casimir(jc_z + lz_terms(so, [outer]), jc_p + lplus_terms(so, [outer]))
+        )
+        keys.append(("K",))
+    elif outer_l > 0:
+        ops.append(cas.one(j_subshell_operators(so, outer, 2 * outer_l + 1)[0]))
+        keys.append(("j+",))
     n = cas.Q.shape[1]
     R, values, index = _sequential(ops, n, tie)
     val = dict(zip(keys, values, strict=True))
@@ -368,7 +406,11 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
                     Ls = _casimir_value(val[("L", pos)][i])
                     S2s = _casimir_value2(val[("S", pos)][i])
                     v = _seniority(val[("v", pos)][i], l, n_el) if l >= 2 else _p_seniority(Ls, S2s)
-                    parts.append(SubshellPart(s.name, n_el, l, Ls, S2s, v, 0))
+                    copies = seniority_copies(l, n_el, Ls, S2s)
+                    # the compilations' index; copies of equal seniority (f shells) keep the
+                    # running letter added below
+                    nk = copies.index(v) + 1 if len(copies) > 1 else 0
+                    parts.append(SubshellPart(s.name, n_el, l, Ls, S2s, v, nk))
                 pos += 1
             else:
                 parts.append(SubshellPart(s.name, s.occupancy, s.l))
@@ -388,16 +430,24 @@ def _jk_basis(basis: Basis, info, cas: _Casimirs, tie, states: list[LSState], J2
         head, _, final = text.rpartition(" ")
         # core term with its J in parentheses, then the outer electron and [K]
         jc2 = _two_j(val[("Jc",)][i])
-        k2 = _two_j(val[("K",)][i])
         core_term = final if len(core) == 1 else term_symbol(cL, cS2, core_odd)
         head_text = head
         odd = info.configuration.parity == "odd"
-        # a seniority digit on the core term would run into J_c: separate them by a comma
-        sep = "" if re.fullmatch(r"\d+[A-Z\[\]=L0-9]*?[A-Z]°?", core_term) else ","
-        lab = (
-            f"{head_text}({core_term}{sep}{format_angular(jc2)}){outer_sub.name} "
-            f"2[{format_angular(k2)}]" + ("°" if odd else "")
-        )
+        # an index digit on the core term would run into J_c: separate them by a comma
+        sep = "" if re.fullmatch(r"\d+[A-Z]°?", core_term) else ","
+        if mode == "JK":
+            k2 = _two_j(val[("K",)][i])
+            lab = (
+                f"{head_text}({core_term}{sep}{format_angular(jc2)}){outer_sub.name} "
+                f"2[{format_angular(k2)}]" + ("°" if odd else "")
+            )
+        else:
+            ol = outer_sub.l
+            j2 = 1 if ol == 0 else (2 * ol + 1 if round(val[("j+",)][i]) == 1 else 2 * ol - 1)
+            lab = (
+                f"{head_text}({core_term}{sep}{format_angular(jc2)}){outer_sub.name}"
+                f"({format_angular(j2)})"
+            )
         if index[i]:
             lab += "abcdefghijklmnopqrstuvwxyz"[index[i] - 1]
         labels.append(lab)

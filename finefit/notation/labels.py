@@ -5,9 +5,10 @@ LS:  ``3d6(5D)4s 6D``, ``2p5(2P°)3p 3D``, ``3d5(6S)4s(7S)4p 8P°``, ``2p 3p 1S`
      electron; later open subshells carry their own term when it is not implied
      (one electron or one hole); from the second open subshell on, the term coupled
      so far follows in parentheses. A subshell term that occurs more than once in
-     l^N carries its seniority as a trailing digit (``3d3(2D1)``, ``3d3(2D3)``); where
-     even the seniority repeats (f shells) a letter follows it (``4f3(2D3a)``), in
-     the order of the subshell's own electrostatic energy.
+     l^N carries the index of the level compilations (Nielson & Koster 1963) as a
+     trailing digit: ``3d7 2D2``, ``3d6(3P2)4s 4P``, ``4f3 2H2``. The explicit form,
+     finefit's own, adds Racah's quantum numbers in braces: ``3d7 2D2{v3}``,
+     ``4f3 2H2{v3,W210,U21}``; it is accepted on input with or without the index.
 jj:  ``2p5(3/2)3p(1/2)``: each open subshell with its j-groups and its J
      (``3d6(3/2 5/2^5;4)``), the J coupled so far in angle brackets from the second
      subshell on (``<9/2>``).
@@ -38,18 +39,40 @@ class SubshellPart:
     L: int | None = None  # own term (open subshells)
     S2: int | None = None
     seniority: int | None = None
-    index: int = 0
+    index: int = 0  # repeated-term index (Nielson & Koster), 0 for a term that occurs once
+    w: tuple[int, ...] = ()
+    u: tuple[int, ...] = ()
 
 
-def subshell_term_text(l: int, n: int, L: int, S2: int, seniority: int, index: int) -> str:
+def explicit_qualifier(seniority: int, w: tuple[int, ...] = (), u: tuple[int, ...] = ()) -> str:
+    """finefit's explicit form of a repeated term's quantum numbers: ``{v3}``, ``{v3,W210,U21}``."""
+    text = f"v{seniority}"
+    if w:
+        text += ",W" + "".join(str(x) for x in w)
+    if u:
+        text += ",U" + "".join(str(x) for x in u)
+    return "{" + text + "}"
+
+
+def subshell_term_text(
+    l: int,
+    n: int,
+    L: int,
+    S2: int,
+    index: int,
+    explicit: str = "",
+) -> str:
+    """A subshell's own term with its repeated-term index (and explicit qualifier if given)."""
     odd = (l * n) % 2 == 1
-    sym = term_symbol(L, S2, odd)
-    counts = subshell_term_counts(l, n)
-    if counts.get((L, S2), 1) > 1:
-        sym += str(seniority)
-        if index:
-            sym += _INDEX_LETTERS[index - 1]
-    return sym
+    sym = term_symbol(L, S2, False)
+    if subshell_term_counts(l, n).get((L, S2), 1) > 1:
+        sym += (str(index) if index else "") + explicit
+    return sym + (ODD if odd else "")
+
+
+def _part_term(p: SubshellPart, explicit: bool) -> str:
+    qual = explicit_qualifier(p.seniority, p.w, p.u) if explicit and p.seniority is not None else ""
+    return subshell_term_text(p.l, p.occupancy, p.L, p.S2, p.index, qual)
 
 
 def _written(name: str, n: int) -> str:
@@ -62,8 +85,12 @@ def format_ls(
     L: int,
     S2: int,
     odd: bool,
+    explicit: bool = False,
 ) -> str:
-    """An LS label from the written subshells (closed ones included, no term shown)."""
+    """An LS label from the written subshells (closed ones included, no term shown).
+
+    ``explicit`` adds the quantum numbers of repeated subshell terms in braces.
+    """
     open_pos = [i for i, p in enumerate(parts) if 0 < p.occupancy < 4 * p.l + 2]
     out = []
     parity = 0
@@ -75,12 +102,10 @@ def format_ls(
             unique = p.occupancy in (1, 4 * p.l + 1)
             last = k == len(open_pos) - 1
             if k == 0 and not last and p.occupancy != 1:
-                text += f"({subshell_term_text(p.l, p.occupancy, p.L, p.S2, p.seniority, p.index)})"
+                text += f"({_part_term(p, explicit)})"
             elif k > 0:
                 if not unique:
-                    text += (
-                        f"({subshell_term_text(p.l, p.occupancy, p.L, p.S2, p.seniority, p.index)})"
-                    )
+                    text += f"({_part_term(p, explicit)})"
                 if not last:
                     iL, iS2 = intermediates[k - 1]
                     text += f"({term_symbol(iL, iS2, parity % 2 == 1)})"
@@ -88,7 +113,7 @@ def format_ls(
     final = term_symbol(L, S2, odd)
     if len(open_pos) == 1:
         p = parts[open_pos[0]]
-        final = subshell_term_text(p.l, p.occupancy, L, S2, p.seniority, p.index)
+        final = _part_term(p, explicit)
     return "".join(_join(out)) + " " + final
 
 

@@ -55,3 +55,21 @@ def subshell_term_counts(l: int, n: int) -> dict[tuple[int, int], int]:
         if k:
             terms[(ml, ms2)] = k
     return terms
+
+
+def seniority_copies(l: int, n: int, L: int, S2: int) -> list[int]:
+    """Seniorities of the copies of term (L, 2S) in l^N, in increasing order.
+
+    Terms of seniority v in l^N are those of l^v less those of l^(v-2) (Racah 1943,
+    Phys. Rev. 63, 367), for v = N, N-2, ... down to 0 or 1, and v <= 4l+2-N.
+    """
+    out: list[int] = []
+    for v in range(n % 2, min(n, 4 * l + 2 - n) + 1, 2):
+        here = subshell_term_counts(l, v).get((L, S2), 0) if v else int((L, S2) == (0, 0))
+        below = 0
+        if v >= 2:
+            below = subshell_term_counts(l, v - 2).get((L, S2), 0) if v > 2 else int(
+                (L, S2) == (0, 0)
+            )
+        out.extend([v] * (here - below))
+    return out

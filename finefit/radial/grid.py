@@ -1,11 +1,12 @@
 """Logarithmic radial grid, Numerov kinetic operator and fourth-order radial quadratures.
 
 The grid is r = exp(x)/Z with x uniform (step h), the usual choice for atomic
-Hartree-Fock work (Froese Fischer 1977): it scales with Z and crowds
+Hartree-Fock work (the logarithmic variable of Hartree 1957, "The Calculation
+of Atomic Structures"): it scales with Z and crowds
 points near the nucleus.  Radial functions are stored as y(x) with
 P(r) = sqrt(r) y(x), which turns the radial equation
 -P''/2 + [l(l+1)/(2r^2) + V] P = eps P into y'' = [(l+1/2)^2 + 2 r^2 (V - eps)] y,
-a form Numerov's method integrates to O(h^4) (Froese Fischer 1977).
+a form Numerov's method integrates to O(h^4) (Hartree 1957).
 
 Conventions used everywhere in the package:
 

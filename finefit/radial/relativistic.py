@@ -1,8 +1,8 @@
 """First-order relativistic corrections to non-relativistic orbitals (Pauli approximation).
 
 Expanding the Dirac equation in powers of alpha (Bethe & Salpeter, "Quantum Mechanics
-of One- and Two-Electron Atoms", 1957; Cowan 1981, the chapter on quasi-relativistic
-corrections) gives, besides spin-orbit, two spin-independent one-electron terms:
+of One- and Two-Electron Atoms", 1957) gives, besides spin-orbit,
+two spin-independent one-electron terms:
 
 * mass-velocity  H_mv = -(alpha^2/8) p^4, so that for an orbital P_nl
   E_mv = -(alpha^2/8) int [p^2 P]^2 dr,  p^2 P = -P'' + l(l+1) P / r^2;

@@ -270,9 +270,9 @@ class HartreeFockResult:
         where V is the nuclear potential plus the spherical direct (F^0) potential of the
         other N-1 electrons, so (1/r) dV/dr = Z_eff(r)/r^3 (:meth:`screening_charge`).
         Exchange and the spin-other-orbit terms of Blume & Watson are not included
-        (Condon & Shortley 1935; Cowan 1981 uses the same central-field form with
-        his own potential).  Hydrogen-like limit: alpha^2 Z^4 / (2 n^3 l (l+1/2)(l+1))
-        hartree.  Raises for s orbitals (no spin-orbit parameter).
+        (Condon & Shortley 1935 give the central-field form).  Hydrogen-like limit:
+        alpha^2 Z^4 / (2 n^3 l (l+1/2)(l+1)) hartree.
+        Raises for s orbitals (no spin-orbit parameter).
         """
         i = self._i(orbital)
         if self._shells[i].l == 0:

@@ -1,7 +1,8 @@
 """Numerical Hartree-Fock for the average energy of a configuration.
 
-Energy functional (Slater 1960, "Quantum Theory of Atomic Structure", vol. II; Cowan
-1981; Froese Fischer 1977; coefficients re-derived here), orbitals P_a normalised to 1,
+Energy functional (Slater 1960, "Quantum Theory of Atomic Structure", vol. II;
+Hartree 1957, "The Calculation of Atomic Structures"; coefficients re-derived here),
+orbitals P_a normalised to 1,
 w_a electrons in subshell a:
 
     E_av = sum_a w_a I(a)
@@ -25,7 +26,8 @@ Method (our own; the ingredients are textbook):
   reflections) before diagonalising: this is the "Schmidt + eigenvalue" route.
 * The one freedom deflation leaves, the rotation of two same-l orbitals into each
   other, is fixed by the variational condition w_a eps_ba = w_b eps_ab (the symmetry
-  of the Lagrange multipliers; Froese Fischer 1977) through a Newton step on
+  of the Lagrange multipliers, which follows from making the energy stationary under
+  that rotation) through a Newton step on
   the rotation angle.  Closed-closed pairs need none (energy invariant).
 * Self-consistency: Pulay's DIIS extrapolation on the orbital vectors, started from a
   Thomas-Fermi potential.

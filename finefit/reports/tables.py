@@ -47,8 +47,11 @@ def fmt_num(x: float | None, digits: int = 2) -> str:
 
 def summary_text(r: FitResult) -> Text:
     t = Text()
-    state = "converged" if r.converged else "NOT converged"
-    t.append(f"{state}", style="bold green" if r.converged else "bold red")
+    if not getattr(r, "fitted", True):
+        t.append("not fitted (values as given)", style="bold")
+    else:
+        state = "converged" if r.converged else "NOT converged"
+        t.append(f"{state}", style="bold green" if r.converged else "bold red")
     sigma = "undefined" if r.sigma is None else f"{r.sigma:.3f} cm-1"
     t.append(f"   sigma = {sigma}   N levels = {r.n_levels}   N free = {r.n_free}")
     t.append(f"   evaluations = {r.iterations}")

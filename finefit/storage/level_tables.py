@@ -17,6 +17,7 @@ from pathlib import Path
 
 from finefit.errors import FinefitError
 from finefit.fitting.settings import ObservedLevel
+from finefit.notation.compilation import COMPILATION_HEADER, CompilationRow, read_row
 from finefit.notation.jvalues import format_j, parse_j
 from finefit.storage.atomic import atomic_write_text, read_text
 
@@ -46,8 +47,13 @@ def _rows(text: str, fmt: str) -> list[tuple[int, list[str]]]:
     out = []
     if fmt in ("csv", "tsv"):
         delim = "," if fmt == "csv" else "\t"
-        reader = csv.reader(io.StringIO("\n".join(ln for _, ln in lines)), delimiter=delim)
-        for (lineno, _), row in zip(lines, reader, strict=False):
+        for lineno, ln in lines:
+            try:
+                row = next(csv.reader([ln], delimiter=delim))
+            except csv.Error as exc:
+                raise FinefitError(
+                    f"line {lineno}: cannot split the row into columns ({exc})", f"line {lineno}"
+                ) from None
             out.append((lineno, [c.strip() for c in row]))
     else:
         for lineno, ln in lines:
@@ -64,11 +70,20 @@ def read_levels(
     fmt: str | None = None,
     defaults: dict | None = None,
     id_start: int = 1,
+    skip_bad: bool = False,
+    bad_rows: list | None = None,
 ) -> list[ObservedLevel]:
-    """Read observed levels from a table; errors name the file, line and column."""
+    """Read observed levels from a table; errors name the file, line and column.
+
+    Every bad row is listed in one error; with ``skip_bad`` they are left out instead
+    and appended to ``bad_rows`` as (line, reason).
+    """
     p = Path(path)
     text = read_text(p, "level table")
-    return parse_levels(text, fmt or detect_format(p, text), columns, defaults, str(p), id_start)
+    return parse_levels(
+        text, fmt or detect_format(p, text), columns, defaults, str(p), id_start, skip_bad,
+        bad_rows,
+    )
 
 
 def parse_levels(
@@ -78,7 +93,10 @@ def parse_levels(
     defaults: dict | None = None,
     source: str = "table",
     id_start: int = 1,
+    skip_bad: bool = False,
+    bad_rows: list | None = None,
 ) -> list[ObservedLevel]:
+    """Levels from the text of a table. A column mapped to "" is switched off."""
     if fmt not in ("csv", "tsv", "txt"):
         raise FinefitError(f"unknown table format {fmt!r}: use csv, tsv or txt", fmt)
     rows = _rows(text, fmt)
@@ -87,6 +105,7 @@ def parse_levels(
     header_line, header = rows[0]
     lower = [h.lower() for h in header]
     mapping: dict[str, int] = {}
+    switched_off: set[str] = set()
     if columns:
         for fld, col in columns.items():
             if fld not in FIELDS:
@@ -94,6 +113,9 @@ def parse_levels(
                     f"column mapping names unknown field {fld!r}; fields: {', '.join(FIELDS)}",
                     fld,
                 )
+            if col == "":
+                switched_off.add(fld)
+                continue
             if col.lower() not in lower:
                 raise FinefitError(
                     f"{source}: no column {col!r} in the header (line {header_line}): "
@@ -102,7 +124,7 @@ def parse_levels(
                 )
             mapping[fld] = lower.index(col.lower())
     for fld in FIELDS:
-        if fld not in mapping and fld.lower() in lower:
+        if fld not in mapping and fld not in switched_off and fld.lower() in lower:
             mapping[fld] = lower.index(fld.lower())
     defaults = dict(defaults or {})
     for need in ("energy", "J"):
@@ -118,83 +140,104 @@ def parse_levels(
             "parity",
         )
     out = []
-    for k, (lineno, row) in enumerate(rows[1:]):
-        def cell(fld: str, lineno=lineno, row=row):
-            if fld not in mapping:
-                return defaults.get(fld)
-            i = mapping[fld]
-            if i >= len(row):
-                raise FinefitError(
-                    f"{source} line {lineno}: missing column {header[i]!r}", f"line {lineno}"
-                )
-            v = row[i].strip()
-            return v if v != "" else defaults.get(fld)
-
-        def number(fld: str, lineno=lineno, cell=cell) -> float | None:
-            v = cell(fld)
-            if v is None:
-                return None
-            try:
-                x = float(v)
-            except ValueError:
-                raise FinefitError(
-                    f"{source} line {lineno}, column {fld!r}: {v!r} is not a number",
-                    f"line {lineno}",
-                ) from None
-            if not math.isfinite(x):
-                raise FinefitError(
-                    f"{source} line {lineno}, column {fld!r}: {v!r} is not finite",
-                    f"line {lineno}",
-                )
-            return x
-
-        energy = number("energy")
-        if energy is None:
-            raise FinefitError(f"{source} line {lineno}: no energy", f"line {lineno}")
-        jraw = cell("J")
+    problems: list[tuple[int, str]] = []
+    for lineno, row in rows[1:]:
         try:
-            J = parse_j(jraw, field=f"{source} line {lineno}, column 'J'")
+            out.append(_row_level(row, lineno, mapping, defaults, header, source,
+                                  f"L{id_start + len(out):03d}"))
         except FinefitError as exc:
-            raise FinefitError(str(exc), f"line {lineno}") from None
-        parity = str(cell("parity") or "").lower()
-        parity = {"e": "even", "o": "odd", "0": "even", "1": "odd"}.get(parity, parity)
-        if parity not in ("even", "odd"):
-            raise FinefitError(
-                f"{source} line {lineno}, column 'parity': {cell('parity')!r} is not even/odd",
-                f"line {lineno}",
-            )
-        inc = cell("include")
-        if inc is None:
-            include = True
-        elif str(inc).lower() in _TRUE:
-            include = True
-        elif str(inc).lower() in _FALSE:
-            include = False
-        else:
-            raise FinefitError(
-                f"{source} line {lineno}, column 'include': {inc!r} is not yes/no",
-                f"line {lineno}",
-            )
-        unc = number("uncertainty")
-        if unc is not None and not unc > 0:
-            raise FinefitError(
-                f"{source} line {lineno}, column 'uncertainty' must be positive", f"line {lineno}"
-            )
-        out.append(
-            ObservedLevel(
-                id=str(cell("id") or f"L{id_start + k:03d}"),
-                energy=energy,
-                J=J,
-                parity=parity,
-                uncertainty=unc,
-                configuration=cell("configuration"),
-                label=cell("label"),
-                include=include,
-                g=number("g"),
-                note=str(cell("note") or ""),
-            )
+            problems.append((lineno, str(exc)))
+    if problems and not skip_bad:
+        listed = "\n".join(f"  {msg}" for _, msg in problems[:50])
+        more = f"\n  … and {len(problems) - 50} more" if len(problems) > 50 else ""
+        raise FinefitError(
+            f"{source}: {len(problems)} bad row(s) (nothing imported; --skip-bad imports the "
+            f"rest):\n{listed}{more}",
+            f"line {problems[0][0]}",
         )
+    if bad_rows is not None:
+        bad_rows.extend(problems)
     return out
+
+
+def _row_level(row, lineno, mapping, defaults, header, source, default_id) -> ObservedLevel:
+    """One level from one row; a FinefitError names the line and column."""
+
+    def cell(fld: str, lineno=lineno, row=row):
+        if fld not in mapping:
+            return defaults.get(fld)
+        i = mapping[fld]
+        if i >= len(row):
+            raise FinefitError(
+                f"{source} line {lineno}: missing column {header[i]!r}", f"line {lineno}"
+            )
+        v = row[i].strip()
+        return v if v != "" else defaults.get(fld)
+
+    def number(fld: str, lineno=lineno, cell=cell) -> float | None:
+        v = cell(fld)
+        if v is None:
+            return None
+        try:
+            x = float(v)
+        except ValueError:
+            raise FinefitError(
+                f"{source} line {lineno}, column {fld!r}: {v!r} is not a number",
+                f"line {lineno}",
+            ) from None
+        if not math.isfinite(x):
+            raise FinefitError(
+                f"{source} line {lineno}, column {fld!r}: {v!r} is not finite",
+                f"line {lineno}",
+            )
+        return x
+
+    energy = number("energy")
+    if energy is None:
+        raise FinefitError(f"{source} line {lineno}: no energy", f"line {lineno}")
+    jraw = cell("J")
+    try:
+        J = parse_j(jraw, field=f"{source} line {lineno}, column 'J'")
+    except FinefitError as exc:
+        raise FinefitError(str(exc), f"line {lineno}") from None
+    parity = str(cell("parity") or "").lower()
+    parity = {"e": "even", "o": "odd", "0": "even", "1": "odd"}.get(parity, parity)
+    if parity not in ("even", "odd"):
+        raise FinefitError(
+            f"{source} line {lineno}, column 'parity': {cell('parity')!r} is not even/odd",
+            f"line {lineno}",
+        )
+    inc = cell("include")
+    if inc is None:
+        include = True
+    elif str(inc).lower() in _TRUE:
+        include = True
+    elif str(inc).lower() in _FALSE:
+        include = False
+    else:
+        raise FinefitError(
+            f"{source} line {lineno}, column 'include': {inc!r} is not yes/no",
+            f"line {lineno}",
+        )
+    unc = number("uncertainty")
+    if unc is not None and not unc > 0:
+        raise FinefitError(
+            f"{source} line {lineno}, column 'uncertainty' must be positive", f"line {lineno}"
+        )
+    return (
+        ObservedLevel(
+            id=str(cell("id") or default_id),
+            energy=energy,
+            J=J,
+            parity=parity,
+            uncertainty=unc,
+            configuration=cell("configuration"),
+            label=cell("label"),
+            include=include,
+            g=number("g"),
+            note=str(cell("note") or ""),
+        )
+    )
 
 
 def format_levels(levels: list[ObservedLevel], fmt: str) -> str:
@@ -227,3 +270,52 @@ def write_levels(levels: list[ObservedLevel], path: str | Path, fmt: str | None 
     if fmt is None:
         fmt = {".csv": "csv", ".tsv": "tsv"}.get(p.suffix.lower(), "txt")
     return atomic_write_text(p, format_levels(levels, fmt), backup=True)
+
+
+def _header_cells(text: str) -> list[str]:
+    first = next((ln for ln in text.splitlines() if ln.strip() and not ln.startswith("#")), "")
+    delim = "\t" if "\t" in first else ","
+    try:
+        cells = next(csv.reader([first], delimiter=delim))
+    except (csv.Error, StopIteration):
+        return []
+    return [c.strip().strip('"').strip().lower() for c in cells]
+
+
+def is_compilation_table(text: str) -> bool:
+    """True when the header is the compilations' (Configuration, Term, J, Prefix, Level, Suffix)."""
+    cells = [c for c in _header_cells(text) if c]
+    return tuple(cells[:6]) == COMPILATION_HEADER
+
+
+def read_compilation(path: str | Path) -> list[CompilationRow]:
+    """The data rows of a table in the compilations' layout, with their line numbers.
+
+    Cells may be quoted; a trailing tab is allowed. A row that cannot be split into
+    cells is returned with an unreadable configuration (its reason names the line).
+    """
+    p = Path(path)
+    text = read_text(p, "level table")
+    if not is_compilation_table(text):
+        raise FinefitError(
+            f"{p}: the header is not the compilations' layout "
+            f"({', '.join(COMPILATION_HEADER)})",
+            str(p),
+        )
+    lines = text.splitlines()
+    header_at = next(i for i, ln in enumerate(lines) if ln.strip() and not ln.startswith("#"))
+    delim = "\t" if "\t" in lines[header_at] else ","
+    rows = []
+    for i in range(header_at + 1, len(lines)):
+        ln = lines[i]
+        if not ln.strip() or ln.lstrip().startswith("#"):
+            continue
+        try:
+            cells = next(csv.reader([ln], delimiter=delim))
+        except csv.Error as exc:
+            rows.append(read_row(i + 1, [f"<unreadable row: {exc}>"]))
+            continue
+        while cells and cells[-1].strip() == "" and len(cells) > 6:
+            cells.pop()
+        rows.append(read_row(i + 1, cells))
+    return rows

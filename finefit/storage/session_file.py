@@ -17,11 +17,12 @@ import tomli_w
 from finefit.errors import FinefitError
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
 from finefit.notation.jvalues import format_j, parse_j
+from finefit.storage.level_sets import LevelSet, dump_level_sets, parse_level_sets
 
 FORMAT = "finefit-session/1"
 
 TOP_KEYS = ("format", "title", "note", "ion", "model", "fit", "parameters", "level",
-            "parameter_set")
+            "parameter_set", "level_set")
 ION_KEYS = ("Z", "charge", "ionization_limit", "name")
 MODEL_KEYS = ("configurations",)
 FIT_KEYS = ("weighting", "default_uncertainty", "max_iterations", "tolerance",
@@ -67,6 +68,7 @@ class SessionData:
     parameter_sets: list[ParameterSet] = field(default_factory=list)
     title: str = ""
     note: str = ""
+    level_sets: list[LevelSet] = field(default_factory=list)  # optimised levels applied
 
 
 # ----------------------------------------------------------------------------- reading
@@ -288,6 +290,7 @@ def parse_session(text: str, source: str = "session") -> SessionData:
         ion=ion, configurations=list(configs), parameters=params, levels=levels, options=opts,
         parameter_sets=sets, title=_str(doc, "title", "", source) or "",
         note=_str(doc, "note", "", source) or "",
+        level_sets=parse_level_sets(doc.get("level_set", []), source),
     )
 
 
@@ -346,6 +349,8 @@ def dump_session(data: SessionData) -> str:
         del doc["level"]
     if not doc["parameter_set"]:
         del doc["parameter_set"]
+    if data.level_sets:
+        doc["level_set"] = dump_level_sets(data.level_sets)
     header = (
         "# finefit session file (TOML). Energies and parameters in cm^-1.\n"
         "# Edit freely; finefit validates every field when it reads the file.\n"

@@ -73,6 +73,7 @@ class WorkspaceApp(App):
         self.radial_cache: dict = {}
         self.lines_running = False
         self.pictures_stale = True
+        self.level_opt = None  # the last level optimisation (observed lines of a level)
 
     # ------------------------------------------------------------------ layout
     def compose(self) -> ComposeResult:
@@ -94,6 +95,8 @@ class WorkspaceApp(App):
             with TabPane("Lines", id="lines"):
                 yield Static("", id="lines-note", markup=False)
                 yield DataTable(id="lines-table", cursor_type="row")
+                yield Static("", id="obs-lines-note", markup=False)
+                yield DataTable(id="obs-lines-table", cursor_type="row")
         yield Static("", id="status", markup=False)
         yield Footer()
 
@@ -133,6 +136,11 @@ class WorkspaceApp(App):
                                   ("other", "other level", None), ("J", "J", 5),
                                   ("gf", "gf", 8), ("A", "A (s-1)", 9)):
             ln.add_column(label, key=key, width=width)
+        ob = self.query_one("#obs-lines-table", DataTable)
+        for key, label, width in (("line", "line", 5), ("other", "other level", 8),
+                                  ("obs", "σ obs", 15), ("ritz", "σ Ritz", 15),
+                                  ("or", "obs-Ritz", 9), ("z", "/σ", 5), ("flags", "flags", 24)):
+            ob.add_column(label, key=key, width=width)
         pt = self.query_one("#params-table", DataTable)
         for key, label in (("name", "parameter"), ("value", "value"), ("err", "± error"),
                            ("state", "status"), ("link", "link"), ("bounds", "bounds"),
@@ -475,7 +483,34 @@ class WorkspaceApp(App):
                 pass
 
     # ------------------------------------------------------------------ lines view
+    def refresh_observed_lines(self) -> None:
+        """Observed lines of the selected level from the last level optimisation (O)."""
+        from finefit.reports.levelopt import paren
+
+        note = self.query_one("#obs-lines-note", Static)
+        table = self.query_one("#obs-lines-table", DataTable)
+        table.clear()
+        opt = self.level_opt
+        if opt is None:
+            note.update(Text("Observed lines: O optimises the levels from a line list.",
+                             style="dim"))
+            return
+        lid = self.selected_level_id()
+        mine = opt.lines_of(lid) if lid else []
+        n_bad = sum("outlier" in x.flags for x in mine)
+        note.update(Text(f"{len(mine)} observed lines of {lid} in {opt.source or 'the list'}"
+                         f" (chi2/dof {opt.reduced_chi2 or 0:.2f}; {n_bad} beyond 3 σ)",
+                         style="bold yellow" if n_bad else ""))
+        for x in sorted(mine, key=lambda x: x.wavenumber):
+            z = "" if x.normalised is None else f"{x.normalised:+.1f}"
+            style = "red" if "outlier" in x.flags else ("dim" if not x.used else "")
+            table.add_row(Text(str(x.source_line)), Text(x.upper if x.lower == lid else x.lower),
+                          Text(paren(x.wavenumber, x.uncertainty)),
+                          Text(paren(x.ritz, x.ritz_uncertainty)), Text(f"{x.residual:+.4f}"),
+                          Text(z, style=style), Text(", ".join(x.flags), style=style))
+
     def refresh_lines(self) -> None:
+        self.refresh_observed_lines()
         note = self.query_one("#lines-note", Static)
         table = self.query_one("#lines-table", DataTable)
         table.clear()
@@ -505,15 +540,20 @@ class WorkspaceApp(App):
                 if (a.parity, a.block, a.position) == key:
                     mine.append((x, b))
         note.update(Text(f"{len(mine)} predicted lines of {row.id} (J = {format_j(row.J)}, "
-                         f"{row.parity}), strongest first. Wavelengths from calculated "
-                         "energies; check them against the spectrum."))
+                         f"{row.parity}), strongest first. Ritz wavelengths where both "
+                         "levels are observed, else from calculated energies (other level "
+                         "shown by label); check them against the spectrum."))
+        def other_id(x, other):
+            return x.upper_id if other is x.upper else x.lower_id
+
         for x, other in mine[:200]:
             table.add_row(
                 Text("" if x.air_wavelength is None else f"{x.air_wavelength:.3f}"),
                 Text(f"{x.vacuum_wavelength:.3f}"), Text(f"{x.wavenumber:.2f}"),
                 Text("" if x.wavenumber_uncertainty is None else
                      f"{x.wavenumber_uncertainty:.2f}"),
-                Text(other.label), Text(format_j(other.J)), Text(f"{x.gf:.3g}"),
+                Text(other_id(x, other) or other.label), Text(format_j(other.J)),
+                Text(f"{x.gf:.3g}"),
                 Text(f"{x.A:.3g}"))
 
     @work(thread=True, exclusive=True, group="lines", exit_on_error=False)
@@ -794,6 +834,42 @@ class WorkspaceApp(App):
             return
         result = self.result
         self.apply_edit("adopted the fitted values", lambda s: s.apply(result))
+
+    def action_optimise_levels(self) -> None:
+        if self._modal_open():
+            return
+        s = self.ws.session
+        last = s.level_sets[-1] if s.level_sets else None
+        start = last.source if last else ""
+        skip = ", ".join(str(x) for x in last.excluded) if last else ""
+
+        def done(values: dict | None) -> None:
+            if values is None:
+                return
+            try:
+                exclude = [int(x) for x in values["exclude"].replace(",", " ").split()]
+            except ValueError:
+                self.notify("file lines to keep out must be whole numbers", severity="error")
+                return
+            try:
+                opt = s.optimise_levels(values["path"].strip(), exclude=exclude)
+            except FinefitError as exc:
+                self.notify(str(exc), title="not optimised", severity="error", timeout=8)
+                return
+            if self.apply_edit(f"levels optimised from {opt.source}",
+                               lambda sess: sess.apply_levels(opt)):
+                self.level_opt = opt
+                n_bad = sum("outlier" in x.flags and x.used for x in opt.lines)
+                red = opt.reduced_chi2
+                self.notify(f"{len(opt.levels)} levels from {opt.n_used} lines; chi2/dof "
+                            f"{'—' if red is None else f'{red:.2f}'}; {n_bad} line(s) beyond "
+                            "3 σ (lines view: 6)", timeout=8)
+
+        self.push_screen(FormScreen(
+            "Optimise the levels from a line list", [("path", "line list", start),
+                                                     ("exclude", "file lines kept out", skip)],
+            note="Energies and uncertainties of every level with lines are replaced "
+                 "(u undoes it)."), done)
 
     def action_load_set(self) -> None:
         if self._modal_open():

@@ -54,7 +54,11 @@ COMMANDS: tuple[Command, ...] = (
     Command("show_tab('diagram')", "5", "Level diagram", "Levels by configuration and J",
             show=False),
     Command("show_tab('lines')", "6", "Lines of the level", "Predicted E1 lines of the "
-            "selected level (needs both parities)", show=False),
+            "selected level (needs both parities), and its observed lines after O",
+            show=False),
+    Command("optimise_levels", "O", "Optimise levels from lines", "Optimise the observed "
+            "levels from a line list (Ritz least squares) and take them over (undoable); the "
+            "lines view then lists each level's observed lines", show=False),
     Command("cycle_diagram", "c", "Diagram configuration", "Show one configuration (or all) "
             "in the level diagram", show=False),
     Command("help", "question_mark,f1", "Keys", "List every key"),

@@ -16,7 +16,7 @@ def test_lyman_alpha_oscillator_strength():
     lines = line_strengths(DipoleModel(a, b), a.solve({}), b.solve({}), {("1s", "2p"): radial})
     S = sum(s for _, _, s in lines)
     delta_e = 0.375  # hartree, 3/8 for infinite nuclear mass
-    f = 2 / 3 * delta_e * S / 2  # f = (2/3) dE S / g_lower, atomic units (Cowan 1981, ch. 14)
+    f = 2 / 3 * delta_e * S / 2  # f = (2/3) dE S / g_lower, atomic units (Bethe & Salpeter 1957)
     assert f == pytest.approx(0.4162, abs=2e-4)
 
 
@@ -69,8 +69,8 @@ def test_3p_3d_pattern_against_table_and_6j():
 
 def test_sum_rules_under_mixing():
     # the fine-structure components add up to the multiplet strength, and the total strength
-    # of the transition array does not depend on the mixing (Condon & Shortley 1935;
-    # Cowan 1981, ch. 14)  # from memory
+    # of the transition array does not depend on the mixing (Condon & Shortley 1935)
+    # from memory
     pure = _pure_ls_lines()
     odd, even = Model("2p 3s"), Model("2p 3p")
     so = odd.solve({"2p 3s: G1(2p,3s)": 300.0, "2p 3s: zeta(2p)": 900.0})
@@ -81,7 +81,8 @@ def test_sum_rules_under_mixing():
     total_pure = sum(s for *_, s in pure)
     assert sum(s for *_, s in mixed) == pytest.approx(total_pure, rel=1e-10)
     # one-electron 3s-3p with a 2p5 spectator: total = (2l+1 of core ... ) * max(l,l') * R^2:
-    # 6 core states x 2 spins x 1 (Cowan 1981)  # from memory
+    # 6 core states x 2 spins x 1 (one-electron sum over m of Bethe & Salpeter 1957)
+    # from memory
     assert total_pure == pytest.approx(12.0, rel=1e-10)
     multiplet = sum(s for la, lb, s in pure if la.label == "2p 3s 3P°" and lb.label == "2p 3p 3D")
     assert multiplet == pytest.approx(sum(_component(pure, "2p 3s 3P°", "2p 3p 3D").values()))

@@ -5,8 +5,7 @@ independent calculations are implemented here with sympy.physics.wigner and nump
 
 1. Racah algebra in the coupled basis |(l1 l2)L, (s1 s2)S; J>: closed forms for the
    direct (F^k) and exchange (G^k) coefficients with one 6j symbol, spin-orbit with a
-   9j symbol (tensor-operator formulas of Racah 1942 / Edmonds 1957, as used in
-   Cowan 1981 chs. 11-13).
+   9j symbol (tensor-operator formulas of Racah 1942 / Edmonds 1957).
 2. Slater determinants |a(m1 ms1) b(m2 ms2)| with Gaunt coefficients (Condon &
    Shortley 1935 ch. VI), spin-orbit from explicit l, s matrices, J found from J^2.
 
@@ -51,7 +50,7 @@ def w9j(a, b, c, d, e, f, g, h, i):
 def red_c(l1, k, l2):
     """<l1||C^k||l2> = (-1)^l1 sqrt((2l1+1)(2l2+1)) (l1 k l2; 0 0 0).
 
-    Cowan 1981 eq. (11.23); Edmonds 1957 eq. (5.4.5).  # from memory
+    Edmonds 1957 eq. (5.4.5).  # from memory
     """
     return (-1) ** l1 * np.sqrt((2 * l1 + 1) * (2 * l2 + 1)) * w3j(l1, k, l2, 0, 0, 0)
 
@@ -59,7 +58,7 @@ def red_c(l1, k, l2):
 def red_j(j):
     """<j||J||j> = sqrt(j(j+1)(2j+1)), Edmonds 1957 eq. (5.4.3).  # from memory
 
-    Reduced matrix elements throughout in the Edmonds/Cowan convention
+    Reduced matrix elements throughout in the Edmonds convention
     <j m|T^k_q|j' m'> = (-1)^(j-m) (j k j'; -m q m') <j||T^k||j'>.
     """
     return np.sqrt(j * (j + 1) * (2 * j + 1))
@@ -118,8 +117,8 @@ def term_energy(l1, l2, L, S, F, G):
     E = sum_k f_k F^k + g_k G^k,
       f_k = (-1)^(l1+l2+L) <l1||C^k||l1><l2||C^k||l2> {l1 l2 L; l2 l1 k},
       g_k = (-1)^S <l1||C^k||l2>^2 {l1 l2 L; l1 l2 k}.
-    Racah 1942 (Phys. Rev. 62, 438) eqs. for two non-equivalent electrons; Cowan 1981
-    sec. 13-? (two-electron configurations); f_k follows from Edmonds 1957 eq. (7.1.6)
+    Racah 1942 (Phys. Rev. 62, 438) eqs. for two non-equivalent electrons;
+    f_k follows from Edmonds 1957 eq. (7.1.6)
     for C^k(1).C^k(2); g_k from the exchange term -<ab|g|ba> with the phases
     (-1)^(l1+l2-L) (orbital) and (-1)^(1-S) (spin) of interchanging the electrons.
     # from memory
@@ -161,7 +160,7 @@ def spin_orbit_element(l1, l2, L, S, Lp, Sp, J, which):
     l.s = -sqrt(3) [l^(1) x s^(1)]^(0); for a scalar (k = 0) double tensor
     <LSJ M|X^0|L'S'J M> = <LSJ||X^0||L'S'J>/sqrt(2J+1), and Edmonds 1957 eq. (7.1.5)
     <LSJ||[T^1 U^1]^0||L'S'J> = (2J+1) {L L' 1; S S' 1; J J 0} <L||T^1||L'><S||U^1||S'>.
-    Cowan 1981 sec. 12-? (spin-orbit matrix elements).  # from memory
+    # from memory
     """
     half = 0.5
     ninej = w9j(L, Lp, 1, S, Sp, 1, J, J, 0)

@@ -88,7 +88,8 @@ def test_compositions_are_complete_in_every_scheme():
             assert sum(c.fraction for c in comp) == pytest.approx(1.0, abs=1e-10)
     jk = {c.label for lev in sol.levels for c in sol.composition(lev, "JK")}
     # Racah pair coupling of 2p5 3p: core 2P°3/2 gives [1/2], [3/2], [5/2]; 2P°1/2 gives
-    # [1/2], [3/2] (Cowan 1981, pair coupling)  # from memory
+    # [1/2], [3/2] (Racah 1942, Phys. Rev. 61, 537, the paper introducing this coupling)
+    # from memory
     assert jk == {
         "2p5(2P°3/2)3p 2[1/2]",
         "2p5(2P°3/2)3p 2[3/2]",

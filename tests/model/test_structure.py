@@ -98,7 +98,8 @@ def test_lande_interval_rule_small_zeta():
 
 def test_jj_limit_large_zeta():
     # jj limit: for 2p 3s with zeta >> G the levels group by the p electron's j:
-    # j = 3/2 (J = 1, 2) lies 3 zeta/2 above j = 1/2 (J = 0, 1) (Cowan 1981)  # from memory
+    # j = 3/2 (J = 1, 2) lies 3 zeta/2 above j = 1/2 (J = 0, 1)
+    # (Condon & Shortley 1935, jj coupling)  # from memory
     model = Model("2p 3s")
     zeta = 10000.0
     sol = model.solve({"2p 3s: G1(2p,3s)": 30.0, "2p 3s: zeta(2p)": zeta})

@@ -87,7 +87,7 @@ def test_d3_terms_racah():
 
 
 def _two_electron_lsj(l1, l2, L, S, k_direct, k_exchange):
-    """f_k and g_k of two non-equivalent electrons (Cowan 1981, eqs. 13.? as Racah 1942)."""
+    """f_k and g_k of two non-equivalent electrons (Racah 1942, Phys. Rev. 62, 438)."""
     f = {}
     for k in k_direct:
         f[k] = float(
@@ -154,7 +154,7 @@ def test_pp_table_values():
 @pytest.mark.parametrize("config, l", [("3d 4s", 2), ("2p 3s", 1), ("4f 6s", 3)])
 def test_sl_configuration(config, l):
     # s-l configuration: singlet-triplet separation 2G^l/(2l+1), triplet lower
-    # (Condon & Shortley 1935, chapter on two-electron configurations; Cowan 1981)
+    # (Condon & Shortley 1935, chapter on two-electron configurations)
     # from memory
     s_l, s_s = config.split()
     G = 1500.0

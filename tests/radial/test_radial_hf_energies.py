@@ -2,9 +2,8 @@
 
 Reference values: C. F. Bunge, J. A. Barrientos, A. V. Bunge and J. A. Cogordan,
 Phys. Rev. A 46, 3691 (1992) (numerical HF energies, He-Xe), which agree with
-Clementi & Roetti, At. Data Nucl. Data Tables 14, 177 (1974) and Froese Fischer,
-"The Hartree-Fock Method for Atoms" (1977) to the digits used here.  All recalled,
-not read from the tables: each is marked "# from memory".
+Clementi & Roetti, At. Data Nucl. Data Tables 14, 177 (1974) to the digits used here.
+All recalled, not read from the tables: each is marked "# from memory".
 
 For configurations with a single LS term (closed shells; one electron or one hole
 outside closed shells) the configuration-average energy is the term energy, so
@@ -51,8 +50,8 @@ def test_closed_shell_total_energy(closed, conf, Z, charge, ref):
 
 @pytest.mark.parametrize("conf,Z,charge,ref", CLOSED)
 def test_virial_theorem(closed, conf, Z, charge, ref):
-    # virial theorem -V/T = 2 holds exactly for HF solutions (Froese Fischer 1977;
-    # Slater 1960) — from memory
+    # virial theorem -V/T = 2 holds exactly for HF solutions (Slater 1960)
+    # — from memory
     assert closed[conf].virial_ratio == pytest.approx(2.0, abs=1e-6)
 
 
@@ -88,8 +87,7 @@ def test_argon_orbital_energies(closed):
 
 
 def test_heavy_closed_shell_radon():
-    # Rn 1S, Z = 86: numerical HF limit -21866.7722 hartree (Froese Fischer 1977 tables /
-    # later numerical HF compilations) — from memory
+    # Rn 1S, Z = 86: numerical HF limit -21866.7722 hartree — from memory
     hf = hartree_fock("6p6", 86)
     assert hf.total_energy == pytest.approx(-21866.7722, rel=1e-5)
     assert hf.virial_ratio == pytest.approx(2.0, abs=1e-6)

@@ -158,8 +158,8 @@ def test_orbital_energies_ordered(fe2):
 
 def test_open_shell_solution_is_stationary_under_rotation():
     """For 1s2 2s the 1s-2s rotation is not an invariance: the solver must have made the
-    energy stationary with respect to it (Froese Fischer 1977, the off-diagonal Lagrange
-    multiplier condition)."""
+    energy stationary with respect to it (the off-diagonal Lagrange
+    multiplier condition of the variational principle)."""
     hf = hartree_fock("1s2 2s", Z=3, grid_step=0.08)
     from finefit.radial._config import complete_configuration
 

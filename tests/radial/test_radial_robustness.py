@@ -1,7 +1,7 @@
 """Convergence across the periodic table and for excited configurations.
 
 The checks are internal consistency only (no external values): convergence, the
-virial theorem -V/T = 2 (exact for HF solutions; Froese Fischer 1977 — from memory),
+virial theorem -V/T = 2 (exact for HF solutions; Slater 1960 — from memory),
 orthonormality, and bound orbitals.
 """
 
@@ -37,7 +37,7 @@ def test_converges_with_virial_and_orthonormality(conf, Z, charge):
 
 
 def test_h_minus_hf_energy():
-    # H- Hartree-Fock limit -0.48792967 hartree (e.g. Froese Fischer 1977) — from memory
+    # H- Hartree-Fock limit -0.48792967 hartree — from memory
     assert hartree_fock("1s2", 1, -1).total_energy == pytest.approx(-0.48792967, rel=1e-6)
 
 

@@ -297,3 +297,38 @@ async def test_adopting_the_fit_sets_starting_values_and_undoes(session_file):
         await pilot.press("u")
         await settle(app, pilot)
         assert app.ws.session.to_toml() == before
+
+
+async def test_optimising_levels_from_lines_shows_observed_lines_and_undoes(tmp_path):
+    # the invented two-parity demo and its invented line list; file line 10 is the
+    # deliberately mismeasured line (sample_sessions/make_samples.py)
+    samples = SAMPLE.parent
+    p = tmp_path / "kc.toml"
+    shutil.copy(samples / "kestrel_two_parity.toml", p)
+    lines = samples / "kestrel_two_parity_lines.txt"
+    app = make_app(p)
+    async with app.run_test(size=(120, 36)) as pilot:
+        await settle(app, pilot)
+        before = app.ws.session.to_toml()
+        await pilot.press("O")
+        await pilot.pause()
+        assert isinstance(app.screen, FormScreen)
+        app.screen.query_one("#f-path", Input).value = str(lines)
+        app.screen.query_one("#f-exclude", Input).focus()
+        await pilot.press("enter")
+        await settle(app, pilot)
+        s = app.ws.session
+        assert app.level_opt is not None and s.level_sets[-1].excluded == []
+        assert s.level("L012").uncertainty < 0.005
+        await select_level(app, pilot, "L012")
+        await pilot.press("6")
+        await pilot.pause()
+        table = app.query_one("#obs-lines-table", DataTable)
+        assert table.row_count == 4  # L012 has four classified lines in the list
+        note = str(app.query_one("#obs-lines-note").render())
+        # with nothing kept out, the mismeasured line (-7 sigma) and the line it drags
+        # (+3.1 sigma) are both beyond 3 sigma
+        assert note.startswith("4 observed lines of L012") and "2 beyond 3 σ" in note
+        await pilot.press("u")
+        await settle(app, pilot)
+        assert app.ws.session.to_toml() == before
