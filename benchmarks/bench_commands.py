@@ -142,6 +142,20 @@ def main() -> int:
         t_fit = wall(finefit("fit", str(sample)))
         print(f"finefit fit               {t_fit:6.3f} s   ratio to (import lmfit + 0.8 s) "
               f"{t_fit / (t_lmfit + 0.8):5.2f} (target <= 1)")
+        code = (
+            "import asyncio, sys\n"
+            "from finefit.ui.app import make_app\n"
+            "async def first_screen():\n"
+            "    app = make_app(sys.argv[1])\n"
+            "    async with app.run_test(size=(120, 40)) as pilot:\n"
+            "        while app.fit_running or app.result is None:\n"
+            "            await pilot.pause(0.005)\n"
+            "        app.ws.dirty = False\n"
+            "asyncio.run(first_screen())\n"
+        )
+        t_ws = wall([sys.executable, "-c", code, str(sample)], 3)
+        print(f"workspace to the first fitted screen (headless 120x40, fresh process) "
+              f"{t_ws:6.3f} s (target <= 1.5 s, ratio {t_ws / 1.5:4.2f})")
         print(f"\n== in-process phases of a fit on the sample ({load()}) ==")
         for name, t in sample_phases(sample).items():
             print(f"{name:28s} {t * 1e3:8.1f} ms")
