@@ -43,7 +43,7 @@ def typical_values(model: Model, seed: int = 1) -> np.ndarray:
             "R": rng.uniform(1000, 5000),
             "zeta": rng.uniform(300, 600),
             "alpha": rng.uniform(30, 80),
-        }[spec.kind]
+        }.get(spec.kind, rng.uniform(-50, 50))  # effective operators: tens of cm-1
     return x
 
 

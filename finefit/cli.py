@@ -451,6 +451,10 @@ def cmd_abinitio(args) -> int:
     from rich.progress import Progress, SpinnerColumn, TextColumn
 
     s = _load(args.session)
+    if args.zeta not in ("blume-watson", "central-field"):
+        raise FinefitError(
+            f"--zeta {args.zeta!r}: use 'blume-watson' or 'central-field'", args.zeta
+        )
     scales = {}
     for item in args.scale or []:
         if "=" not in item:
@@ -465,7 +469,8 @@ def cmd_abinitio(args) -> int:
         task = prog.add_task("ab initio values", total=None)
         res = s.fill_ab_initio(scales, set_values=not args.keep_values,
                                relativistic=args.relativistic,
-                               progress=lambda msg: prog.update(task, description=msg))
+                               progress=lambda msg: prog.update(task, description=msg),
+                               zeta_method=args.zeta)
     s.save()
     con = _console(args)
     tab = Table(title="Ab initio values (cm-1; configuration-average Hartree-Fock)",
@@ -765,6 +770,9 @@ def build_parser() -> argparse.ArgumentParser:
                     help="store the ab initio values only; leave the starting values")
     sp.add_argument("--relativistic", action="store_true",
                     help="add mass-velocity and Darwin corrections to E_av")
+    sp.add_argument("--zeta", default="blume-watson", metavar="METHOD",
+                    help="spin-orbit parameters: Blume-Watson (default) or the central-field "
+                         "formula")
     sp.set_defaults(func=cmd_abinitio)
 
     sp = add("lines", "predicted E1 lines between the session's even and odd levels")

@@ -99,13 +99,13 @@ def _reason_kind(reason: str) -> str:
 def _energy(text: str) -> tuple[float | None, str]:
     t = text.strip()
     if not t:
-        return None, "no energy", [], ""
+        return None, "no energy"
     if "+x" in t.replace(" ", "").lower() or re.search(r"[+][a-z]", t):
-        return None, "known only relative to an unknown offset (+x)", [], ""
+        return None, "known only relative to an unknown offset (+x)"
     if t.endswith("."):
         t = t[:-1]
     if not re.fullmatch(r"[+-]?\d+(\.\d*)?([eE][+-]?\d+)?", t):
-        return None, f"energy not a number: {text[:40]!r}", [], ""
+        return None, f"energy not a number: {text[:40]!r}"
     return float(t), ""
 
 

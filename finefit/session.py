@@ -23,8 +23,10 @@ from finefit.fitting.fit import FitProblem
 from finefit.fitting.results import FitResult
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
 from finefit.model.coupling import coupling_data
+from finefit.model.estimates import default_link, typical_value
 from finefit.model.hamiltonian import Model
 from finefit.model.label_match import LabelTarget, resolve_label
+from finefit.model.parameters import ParameterSpec
 from finefit.notation.configuration import parse_configuration
 from finefit.notation.jvalues import parse_j
 from finefit.storage.atomic import atomic_write_text, read_text
@@ -41,6 +43,30 @@ from finefit.threads import with_engine_threads
 # Kinds varied by default in a new session; CI integrals and effective corrections are
 # commonly held fixed at scaled ab initio values until the data can carry them.
 DEFAULT_VARY = {"Eav", "F", "G", "zeta"}
+# In d and f shells the two-electron corrections alpha, beta (and gamma for f) are
+# free in practically every published fit, so a new session varies them too; the
+# three-electron T^i and the magnetic M^k, P^k start fixed at typical values
+# (# common practice).
+DEFAULT_VARY_DF = {"alpha", "beta", "gamma"}
+
+
+def default_setting(spec: ParameterSpec, config: str, fresh: bool) -> ParameterSetting:
+    """Setting of a parameter that the session does not list yet.
+
+    ``fresh`` (a new session): the vary flags above, typical values of the effective
+    operators (:func:`finefit.model.estimates.typical_value`) and their usual link
+    groups. Otherwise (a file written before the parameter existed): 0 and fixed for
+    effective operators, so that an old session keeps its model.
+    """
+    if not fresh:
+        return ParameterSetting(vary=spec.kind in DEFAULT_VARY)
+    d_or_f = bool(spec.orbitals) and spec.orbitals[0][-1:] in ("d", "f")
+    vary = spec.kind in DEFAULT_VARY or (
+        spec.kind in DEFAULT_VARY_DF and d_or_f and len(spec.orbitals) == 1
+    )
+    return ParameterSetting(
+        value=typical_value(spec.short), vary=vary, link=default_link(config, spec.short)
+    )
 
 
 @lru_cache(maxsize=16)
@@ -62,7 +88,9 @@ class Session:
     """Observed levels of one ion and the parametric model fitted to them."""
 
     @with_engine_threads
-    def __init__(self, data: SessionData, path: str | Path | None = None) -> None:
+    def __init__(
+        self, data: SessionData, path: str | Path | None = None, fresh: bool = False
+    ) -> None:
         self.path = Path(path) if path else None
         self.ion = data.ion
         self.title = data.title
@@ -84,8 +112,8 @@ class Session:
                 )
         for model in self.models.values():
             for spec in model.parameter_specs:
-                self.parameters[spec.name] = data.parameters.get(spec.name) or ParameterSetting(
-                    vary=spec.kind in DEFAULT_VARY
+                self.parameters[spec.name] = data.parameters.get(spec.name) or default_setting(
+                    spec, model.configurations[spec.configs[0]], fresh
                 )
         self.levels: list[ObservedLevel] = []
         for lv in data.levels:
@@ -116,7 +144,7 @@ class Session:
             ion=Ion(Z, charge, ionization_limit, name), configurations=list(configurations),
             parameters={}, levels=[], options=FitOptions(), title=title,
         )
-        return cls(data)
+        return cls(data, fresh=True)
 
     @classmethod
     def load(cls, path: str | Path) -> Session:
@@ -440,15 +468,18 @@ class Session:
         set_values: bool = True,
         relativistic: bool = False,
         progress: Callable[[str], None] | None = None,
+        zeta_method: str = "blume-watson",
     ):
-        """Store Hartree-Fock values as ``ab_initio`` and (optionally) scaled starting values."""
+        """Store Hartree-Fock values as ``ab_initio`` and (optionally) scaled starting values.
+
+        ``zeta_method``: ``"blume-watson"`` (default) or ``"central-field"``."""
         from finefit.fitting.starting import ab_initio_values
 
         lowest = {}
         for lv in self.levels:
             lowest[lv.parity] = min(lowest.get(lv.parity, lv.energy), lv.energy)
         res = ab_initio_values(self.models, self.ion.Z, self.ion.charge, scales, lowest,
-                               relativistic, progress)
+                               relativistic, progress, zeta_method)
         for name, value in res.ab_initio.items():
             self.parameters[name].ab_initio = value
             if set_values:

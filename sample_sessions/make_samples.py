@@ -56,6 +56,10 @@ def iron_group() -> Session:
         else:  # CI integrals and Trees corrections held at 'earlier analysis' values
             start = v
         s.set_parameter(name, start, vary=spec.kind in ("Eav", "F", "G", "zeta"))
+    # the invented model has no seniority correction: hold beta(3d) at 0 in the demo
+    for name in s.parameters:
+        if name not in true:
+            s.set_parameter(name, 0.0, vary=False)
     s.note = NOTE.format(noise=noise, extra="One J = 7/2 label is wrong on purpose.")
     return s
 

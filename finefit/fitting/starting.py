@@ -1,13 +1,16 @@
 """Ab initio and scaled starting values for a session's parameters.
 
 For each configuration a configuration-average Hartree-Fock run (finefit.radial)
-gives E_av, F^k, G^k and zeta; R^k between two configurations uses each
-configuration's own orbitals. Starting values are the ab initio values times scale
-factors: 0.85 for F^k, G^k and R^k and 1.0 for zeta by default (# common practice:
-Slater integrals of free ions typically fit at 0.8-0.9 of their Hartree-Fock values).
-E_av keeps the ab initio differences between configurations, shifted
-as a whole so that the lowest computed level falls on the lowest observed level (or 0).
-The Trees correction has no ab initio value and is left as it is.
+gives E_av, F^k, G^k and zeta (Blume-Watson by default, the central-field formula on
+request); R^k between two configurations uses each configuration's own orbitals.
+Starting values are the ab initio values times scale factors: 0.85 for F^k, G^k and
+R^k and 1.0 for zeta by default (# common practice: Slater integrals of free ions
+typically fit at 0.8-0.9 of their Hartree-Fock values: configuration interaction
+screens them).
+E_av keeps the ab initio differences between configurations, shifted as a whole so
+that the lowest computed level falls on the lowest observed level (or 0). The
+effective operators (alpha, beta, gamma, T^i, P^k) have no ab initio value and are
+left as they are (a new session starts them at typical values).
 """
 
 from __future__ import annotations
@@ -21,6 +24,7 @@ from finefit.errors import FinefitError
 from finefit.model.hamiltonian import Model
 
 DEFAULT_SCALES = {"F": 0.85, "G": 0.85, "R": 0.85, "zeta": 1.0}
+EFFECTIVE_KINDS = {"alpha", "beta", "gamma", "T", "M", "P"}
 
 
 @dataclass
@@ -40,8 +44,13 @@ def ab_initio_values(
     lowest_observed: dict[str, float] | None = None,
     relativistic: bool = False,
     progress: Callable[[str], None] | None = None,
+    zeta_method: str = "blume-watson",
 ) -> AbInitioValues:
-    """Hartree-Fock values for every parameter of the models (one run per configuration)."""
+    """Hartree-Fock values for every parameter of the models (one run per configuration).
+
+    ``zeta_method``: ``"blume-watson"`` (default) or ``"central-field"``
+    (:meth:`finefit.radial.HartreeFockResult.zeta`).
+    """
     from finefit.radial import hartree_fock
 
     sc = dict(DEFAULT_SCALES)
@@ -72,11 +81,15 @@ def ab_initio_values(
                 elif spec.kind == "G":
                     value = hf.G(spec.k, spec.orbitals[0], spec.orbitals[1])
                 elif spec.kind == "zeta":
-                    value = hf.zeta(spec.orbitals[0])
+                    value = hf.zeta(spec.orbitals[0], method=zeta_method)
                 elif spec.kind == "R":
                     value = hf.interaction_parameter(spec.short, runs[cfgs[1]])
                 else:
-                    out.skipped[spec.name] = "no ab initio value for this kind"
+                    out.skipped[spec.name] = (
+                        "an effective operator: it keeps its starting value"
+                        if spec.kind in EFFECTIVE_KINDS
+                        else "no ab initio value for this kind"
+                    )
                     continue
             except FinefitError as exc:
                 out.skipped[spec.name] = str(exc)

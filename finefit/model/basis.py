@@ -28,6 +28,7 @@ from finefit.angular.determinants import (
     quantum_numbers,
     two_body,
 )
+from finefit.angular.effective import seniority_terms, stack_two_body
 from finefit.angular.operators import (
     IntegralClass,
     coulomb_terms,
@@ -174,6 +175,26 @@ class TermGroup:
     vectors: np.ndarray  # (block size, n_states) in block (M_L = L, 2M_S = 2S)
     coulomb: list[np.ndarray] = field(default_factory=list)  # per integral class, n x n
     casimir_l: dict[tuple[int, int], np.ndarray] = field(default_factory=dict)
+    # (subshell, operator name) -> n x n: effective operators diagonal in (L, S)
+    effective: dict[tuple[int, str], np.ndarray] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class EffectiveOperator:
+    """An effective operator of one subshell that is diagonal in (L, S) and independent of J.
+
+    ``name`` is the parameter's short name without the subshell (``beta``, ``T2``); it
+    exists in a configuration where the subshell holds at least ``min_electrons``
+    electrons and at least ``min_electrons`` holes (below that it is constant).
+    """
+
+    shell: int
+    name: str
+    kind: str
+    k: int
+    min_electrons: int
+    one_body: tuple = ()
+    column: int = -1  # weight column in the stacked two-body terms (-1: none)
 
 
 @dataclass
@@ -269,6 +290,7 @@ class Basis:
         self._lplus = lplus_terms(self.spin_orbitals, list(range(len(self.shells))))
         self._splus = splus_terms(self.spin_orbitals, list(range(len(self.shells))))
         self._op_cache: dict = {}
+        self._setup_effective()
         self._build_terms()
         self._build_j_blocks()
 
@@ -314,6 +336,52 @@ class Basis:
     def count(self, config: int, ml: int, ms2: int) -> int:
         b = self.blocks.get((ml, ms2))
         return 0 if b is None else int(np.count_nonzero(b.config == config))
+
+    # ----------------------------------------------------------------- effective operators
+    def _setup_effective(self) -> None:
+        """The (L, S)-diagonal effective operators of the open subshells (CONVENTIONS.md)."""
+        so = self.spin_orbitals
+        ops: list[EffectiveOperator] = []
+        parts = []
+        for s, (_, l) in enumerate(self.shells):
+            occ = [info.occupancy[s] for info in self.configs]
+            if not any(2 <= n <= 4 * l for n in occ):
+                continue
+            if l == 2:
+                parts.append(seniority_terms(so, s))
+                ops.append(EffectiveOperator(s, "beta", "beta", 0, 2, (), len(parts) - 1))
+            if l == 3:
+                # beta = G(G2), gamma = G(R7) (CONVENTIONS.md; Racah 1949)
+                for name, group in (("beta", "G2"), ("gamma", "SO")):
+                    one, two = subshell_casimir_terms(so, s, group)
+                    parts.append(two)
+                    ops.append(EffectiveOperator(s, name, name, 0, 2, tuple(one), len(parts) - 1))
+        self.effective_operators: list[EffectiveOperator] = ops
+        # one sweep per block for the Coulomb and the effective two-body terms: they act on
+        # (nearly) the same spin-orbital quadruples, so the stacked list costs about as
+        # much as the Coulomb terms alone
+        self._n_coulomb = len(self.integral_classes)
+        self._block_terms = (
+            stack_two_body([self._coulomb_terms, stack_two_body(parts)])
+            if parts
+            else self._coulomb_terms
+        )
+
+    def _effective_matrices(
+        self, V: np.ndarray, L: int, S2: int, two: list
+    ) -> dict[tuple[int, str], np.ndarray]:
+        """V^T O V for every effective operator in the block (M_L = L, 2M_S = 2S); ``two``
+        are the block matrices of the stacked effective two-body terms."""
+        if not self.effective_operators:
+            return {}
+        out = {}
+        for op in self.effective_operators:
+            m = two[op.column] if op.column >= 0 else None
+            if op.one_body:
+                ob = self.operator(("eff", op.shell, op.name), (L, S2), (L, S2), list(op.one_body))
+                m = ob if m is None else m + ob
+            out[(op.shell, op.name)] = V.T @ (m @ V)
+        return out
 
     # ----------------------------------------------------------------- LS terms
     def _casimir_l(self, V: np.ndarray, L: int, S2: int, shells: tuple[int, ...]) -> np.ndarray:
@@ -375,7 +443,8 @@ class Basis:
                 V = np.zeros((blk.size, n_c))
                 V[cols] = U[:, :n_c]
                 if coul is None:
-                    coul = two_body(blk, self._coulomb_terms)
+                    both = two_body(blk, self._block_terms)
+                    coul, eff = both[: self._n_coulomb], both[self._n_coulomb :]
                 V, labels = self._label(info, V, L, S2, coul, pairing_cache)
                 vectors.append(V)
                 states.extend(labels)
@@ -388,6 +457,7 @@ class Basis:
             for info in self.configs:
                 for s in info.open_shells:
                     group.casimir_l[(info.index, s)] = self._casimir_l(Vall, L, S2, (s,))
+            group.effective = self._effective_matrices(Vall, L, S2, eff)
             self.term_groups[(L, S2)] = group
             for i, st in enumerate(states):
                 self.ls_states.append(st)

@@ -64,3 +64,53 @@ def lande_zeta(
     z_in = max(Z - s, 1.0)
     z_out = ion_charge + 1
     return ALPHA2_RYDBERG_CM * z_in**2 * z_out**2 / (n_star**3 * l * (l + 0.5) * (l + 1))
+
+
+# Typical values (cm^-1) of the effective operators, used as starting values of a new
+# session where no ab initio value exists. They are the orders of magnitude of published
+# free-ion and crystal fits; the signs matter more than the digits.
+# f shells (trivalent lanthanides; Carnall, Goodman, Rajnak & Rana 1989, J. Chem. Phys.
+# 90, 3443, their "typical" set):  # from memory
+TYPICAL_F = {
+    "alpha": 20.0, "beta": -600.0, "gamma": 1500.0,
+    "T2": 300.0, "T3": 40.0, "T4": 60.0, "T6": -300.0, "T7": 370.0, "T8": 320.0,
+    "M0": 2.5, "M2": 1.4, "M4": 0.78,  # M2 = 0.56 M0, M4 = 0.31 M0 (Marvin-integral ratios)
+    "P2": 300.0, "P4": 225.0, "P6": 150.0,  # P4 = 0.75 P2, P6 = 0.50 P2
+}
+# d shells (iron-group free ions; orders of magnitude of published fits):  # from memory
+TYPICAL_D = {"alpha": 60.0, "beta": -500.0, "T": -2.0}
+# Link groups of fixed ratios usual in f-shell fits (# common practice): the magnetic
+# M^k vary as one parameter, and so do the P^k.
+LINKED_RATIOS = {"M0": "M", "M2": "M", "M4": "M", "P2": "P", "P4": "P", "P6": "P"}
+
+
+def _effective_key(short: str) -> tuple[str, str] | None:
+    """('beta', '4f') for 'beta(4f)'; None for other names."""
+    if "(" not in short or not short.endswith(")"):
+        return None
+    head, orb = short[:-1].split("(", 1)
+    if "," in orb:
+        return None
+    return head, orb
+
+
+def typical_value(short: str) -> float:
+    """Typical starting value (cm^-1) of an effective operator such as ``beta(4f)``; 0 if none.
+
+    Values for d and f shells only (see ``TYPICAL_F``, ``TYPICAL_D``): in p shells the
+    effective corrections are small and start at 0.
+    """
+    key = _effective_key(short)
+    if key is None:
+        return 0.0
+    head, orb = key
+    table = {"d": TYPICAL_D, "f": TYPICAL_F}.get(orb[-1:], {})
+    return float(table.get(head, 0.0))
+
+
+def default_link(config: str, short: str) -> str | None:
+    """The usual link group of a parameter (M^k together, P^k together), or None."""
+    key = _effective_key(short)
+    if key is None or key[0] not in LINKED_RATIOS:
+        return None
+    return f"{config}: {LINKED_RATIOS[key[0]]}({key[1]})"

@@ -203,32 +203,44 @@ class Model:
                         (x,),
                     )
                     add(spec, j2, mat)
-            # Trees correction alpha L(L+1) of each l^N subshell
+            # Trees correction alpha L(L+1) and the other (L, S)-diagonal effective
+            # operators of each l^N subshell (beta, gamma, three-electron T^i)
             for x in range(n_cfg):
                 info = basis.configs[x]
                 for s in info.open_shells:
                     l = basis.shells[s][1]
-                    if not 2 <= info.occupancy[s] <= 4 * l or l == 0:
-                        continue
-                    mat = np.zeros((n, n))
-                    for key, (rows, pos) in groups.items():
-                        cas = basis.term_groups[key].casimir_l[(x, s)]
-                        rows_a = np.array(rows)
-                        pos_a = np.array(pos)
-                        keep = cfg[rows_a] == x
-                        if keep.any():
-                            mat[np.ix_(rows_a[keep], rows_a[keep])] = cas[
-                                np.ix_(pos_a[keep], pos_a[keep])
-                            ]
-                    spec = ParameterSpec(
-                        qualified(self.configurations[x], f"alpha({names[s]})"),
-                        f"alpha({names[s]})",
-                        "alpha",
-                        0,
-                        (names[s],),
-                        (x,),
-                    )
-                    add(spec, j2, mat)
+                    n_el = info.occupancy[s]
+                    if 2 <= n_el <= 4 * l and l > 0:
+                        mat = self._ls_diagonal(
+                            groups, cfg, x, n, lambda g, x=x, s=s: g.casimir_l[(x, s)]
+                        )
+                        spec = ParameterSpec(
+                            qualified(self.configurations[x], f"alpha({names[s]})"),
+                            f"alpha({names[s]})",
+                            "alpha",
+                            0,
+                            (names[s],),
+                            (x,),
+                        )
+                        add(spec, j2, mat)
+                    for op in basis.effective_operators:
+                        if op.shell != s or not (
+                            op.min_electrons <= n_el <= 4 * l + 2 - op.min_electrons
+                        ):
+                            continue
+                        mat = self._ls_diagonal(
+                            groups, cfg, x, n, lambda g, op=op: g.effective[(op.shell, op.name)]
+                        )
+                        short = f"{op.name}({names[s]})"
+                        spec = ParameterSpec(
+                            qualified(self.configurations[x], short),
+                            short,
+                            op.kind,
+                            op.k,
+                            (names[s],),
+                            (x,),
+                        )
+                        add(spec, j2, mat)
             for x in range(n_cfg):
                 r = cfg_rows[x]
                 if r.size == 0:
@@ -275,6 +287,20 @@ class Model:
                 )
             )
         self._block_of_j2 = {b.J2: b for b in self.blocks}
+
+    def _ls_diagonal(self, groups, cfg: np.ndarray, x: int, n: int, getter) -> np.ndarray:
+        """An operator diagonal in (L, S), from its term-group blocks, restricted to config x."""
+        basis = self.basis
+        mat = np.zeros((n, n))
+        for key, (rows, pos) in groups.items():
+            rows_a = np.array(rows)
+            keep = cfg[rows_a] == x
+            if keep.any():
+                pos_a = np.array(pos)[keep]
+                mat[np.ix_(rows_a[keep], rows_a[keep])] = getter(basis.term_groups[key])[
+                    np.ix_(pos_a, pos_a)
+                ]
+        return mat
 
     # --------------------------------------------------------------- access
     @property

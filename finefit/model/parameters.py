@@ -9,7 +9,10 @@ import numpy as np
 from finefit.angular.operators import IntegralClass
 from finefit.errors import FinefitError
 
-KIND_ORDER = {"Eav": 0, "F": 1, "G": 2, "zeta": 3, "alpha": 4, "R": 5}
+KIND_ORDER = {
+    "Eav": 0, "F": 1, "G": 2, "zeta": 3, "alpha": 4, "beta": 5, "gamma": 6, "T": 7, "M": 8,
+    "P": 9, "R": 10,
+}
 
 
 @dataclass(frozen=True)
