@@ -56,7 +56,7 @@ class OperatorBlock:
         doubled, so that v^T C_p v = P[k] @ (v[rows] * v[cols]) with half the products.
         Cached per parameter selection.
         """
-        key = None if params is None else tuple(int(i) for i in params)
+        key = None if params is None else np.asarray(params, dtype=np.int64).tobytes()
         hit = self._packed.get(key)
         if hit is None:
             rows, cols = np.triu_indices(self.size)
