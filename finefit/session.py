@@ -17,10 +17,9 @@ from dataclasses import replace
 from datetime import UTC, datetime
 from functools import lru_cache
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from finefit.errors import FinefitError
-from finefit.fitting.fit import FitProblem
-from finefit.fitting.results import FitResult
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
 from finefit.model.coupling import coupling_data
 from finefit.model.estimates import default_link, typical_value
@@ -39,6 +38,10 @@ from finefit.storage.session_file import (
     parse_session,
 )
 from finefit.threads import with_engine_threads
+
+if TYPE_CHECKING:  # the fit's modules load with the first fit or check (start-up time)
+    from finefit.fitting.fit import FitProblem
+    from finefit.fitting.results import FitResult
 
 # Kinds varied by default in a new session; CI integrals and effective corrections are
 # commonly held fixed at scaled ab initio values until the data can carry them.
@@ -71,8 +74,24 @@ def default_setting(spec: ParameterSpec, config: str, fresh: bool) -> ParameterS
 
 @lru_cache(maxsize=16)
 def model_for(configurations: tuple[str, ...]) -> Model:
-    """The (immutable) model of one interacting set, shared between sessions."""
-    return Model(list(configurations))
+    """The (immutable) model of one interacting set, shared between sessions.
+
+    Read from the persistent model cache (``finefit.storage.model_cache``) when an
+    entry written by this engine exists and passes its checks, else built and stored.
+    """
+    from finefit.model.serial import model_from_arrays, model_to_arrays
+    from finefit.storage import model_cache
+
+    arrays = model_cache.load_model_arrays(configurations)
+    if arrays is not None:
+        try:
+            return model_from_arrays(arrays)
+        except (FinefitError, KeyError, ValueError, TypeError, IndexError):
+            pass  # checksum-valid but unreadable (never expected): build anew
+    model = Model(list(configurations))
+    if model_cache.cache_dir() is not None:
+        model_cache.save_model_arrays(configurations, model_to_arrays(model))
+    return model
 
 
 def group_by_parity(configurations: list[str]) -> dict[str, tuple[str, ...]]:
@@ -355,6 +374,8 @@ class Session:
     # ------------------------------------------------------------------ fitting
     @with_engine_threads
     def problem(self) -> FitProblem:
+        from finefit.fitting.fit import FitProblem
+
         return FitProblem(self.models, self.parameters, self.levels, self.options)
 
     @with_engine_threads
@@ -405,6 +426,8 @@ class Session:
         import dataclasses
 
         import numpy as np
+
+        from finefit.fitting.fit import FitProblem
 
         rng = np.random.default_rng(seed)
         results = [first]

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import functools
 import os
+import sys
 import threading
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
@@ -25,6 +26,7 @@ F = TypeVar("F", bound=Callable)
 _lock = threading.Lock()
 _depth = 0
 _limiters: list = []
+_scipy_capped = False
 
 
 def engine_thread_count() -> int:
@@ -38,12 +40,17 @@ def engine_thread_count() -> int:
 
 
 def _limit() -> None:
-    """Cap the BLAS libraries of numpy and scipy (threadpoolctl sees only loaded ones)."""
+    """Cap the BLAS libraries loaded now (numpy's; scipy's once scipy.linalg is loaded).
+
+    scipy is not imported for this (0.1-0.3 s): a command that never needs scipy never
+    pays for it. When scipy's BLAS appears later, the next engine block caps it too.
+    """
+    global _scipy_capped
     try:
         import numpy  # noqa: F401 - numpy and scipy each bring their own OpenBLAS
-        import scipy.linalg  # noqa: F401
         from threadpoolctl import threadpool_limits
 
+        _scipy_capped = "scipy.linalg" in sys.modules
         _limiters.append(threadpool_limits(limits=engine_thread_count(), user_api="blas"))
     except Exception:  # never let thread tuning break a computation
         pass
@@ -54,7 +61,7 @@ def engine_threads() -> Iterator[None]:
     """Run the block with the engine's BLAS thread count; nested blocks cost nothing."""
     global _depth
     with _lock:
-        if _depth == 0:
+        if _depth == 0 or (not _scipy_capped and "scipy.linalg" in sys.modules):
             _limit()
         _depth += 1
     try:

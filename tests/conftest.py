@@ -2,8 +2,12 @@
 reproducible; locally they explore new examples each time."""
 
 import os
+import tempfile
 
 from hypothesis import settings
+
+# the persistent model cache of the suite: a fresh folder per run (never the user's)
+os.environ["FINEFIT_CACHE_DIR"] = tempfile.mkdtemp(prefix="finefit-test-cache-")
 
 settings.register_profile("ci", derandomize=True, print_blob=True)
 if os.environ.get("CI"):

@@ -13,9 +13,11 @@ import itertools
 from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.sparse as sp
 
 from finefit.errors import FinefitError
+from finefit.lazy import lazy_module
+
+sp = lazy_module("scipy.sparse")  # imported on first use (a cached model needs none)
 
 MAX_SPIN_ORBITALS = 63
 

@@ -11,11 +11,13 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.sparse as sp
 
 from finefit.angular.determinants import SpinOrbitals, TwoBodyTerms
 from finefit.angular.wigner import clebsch_gordan2, gaunt, three_j2
 from finefit.errors import FinefitError
+from finefit.lazy import lazy_module
+
+sp = lazy_module("scipy.sparse")  # imported on first use (a cached model needs none)
 
 OneBody = list[tuple[int, int, float]]
 

@@ -18,7 +18,6 @@ from dataclasses import dataclass, field
 from math import comb
 
 import numpy as np
-import scipy.sparse as sp
 
 from finefit.angular.determinants import (
     DeterminantBlock,
@@ -40,8 +39,11 @@ from finefit.angular.operators import (
 )
 from finefit.angular.wigner import clebsch_gordan2
 from finefit.errors import FinefitError
+from finefit.lazy import lazy_module
 from finefit.notation.configuration import Configuration, parse_configuration
 from finefit.notation.terms import subshell_term_counts
+
+sp = lazy_module("scipy.sparse")  # imported on first use (a cached model needs none)
 
 # Running indices of repeated terms of equal seniority are ordered by the energy of
 # this reference electrostatic operator of the subshell (weights of F^k, k = 2, 4, 6).

@@ -197,6 +197,11 @@ class BlockCoupling:
                 self._j1j = (list(self.ls_labels), np.eye(self._block.size))
         return self._j1j
 
+    def preset_scheme(self, name: str, labels: list[str], U: np.ndarray) -> None:
+        """Give the basis of a scheme computed before (a model read back from arrays)."""
+        key = {"jj": "_jj", "jk": "_jk", "j1j": "_j1j"}[name.lower()]
+        setattr(self, key, (labels, U))
+
     def scheme_basis(self, name: str) -> tuple[list[str], np.ndarray | None]:
         """Labels and basis change (None for LS, the identity) of a scheme."""
         key = name.lower()

@@ -12,13 +12,27 @@ All in cm^-1; constants from scipy.constants (CODATA).
 
 from __future__ import annotations
 
+from functools import cache
+
 import numpy as np
-from scipy.constants import Rydberg, fine_structure
 
 from finefit.errors import FinefitError
 
-RYDBERG_CM = Rydberg / 100.0  # R_inf in cm^-1
-ALPHA2_RYDBERG_CM = fine_structure**2 * RYDBERG_CM
+
+@cache
+def _constants() -> tuple[float, float]:
+    """(R_inf, alpha^2 R_inf) in cm^-1; scipy.constants is imported on first use (0.1-0.2 s)."""
+    from scipy.constants import Rydberg, fine_structure
+
+    return Rydberg / 100.0, fine_structure**2 * Rydberg / 100.0
+
+
+def __getattr__(name: str) -> float:  # PEP 562: RYDBERG_CM, ALPHA2_RYDBERG_CM on first use
+    if name == "RYDBERG_CM":
+        return _constants()[0]
+    if name == "ALPHA2_RYDBERG_CM":
+        return _constants()[1]
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 # Common-practice inner screening for Landé's formula: Z_i = Z - s with s = 0 for
 # s electrons (no spin-orbit), 4 for p, 11 for d and 30 for f (Condon & Shortley
@@ -36,7 +50,7 @@ def _check_l(n: float, l: int) -> None:
 def hydrogenic_zeta(n: int, l: int, Z: float) -> float:
     """zeta_nl of a one-electron ion of nuclear charge Z, in cm^-1."""
     _check_l(n, l)
-    return ALPHA2_RYDBERG_CM * Z**4 / (n**3 * l * (l + 0.5) * (l + 1))
+    return _constants()[1] * Z**4 / (n**3 * l * (l + 0.5) * (l + 1))
 
 
 def effective_quantum_number(binding_energy: float, ion_charge: int) -> float:
@@ -47,7 +61,7 @@ def effective_quantum_number(binding_energy: float, ion_charge: int) -> float:
             "binding_energy",
         )
     z_out = ion_charge + 1
-    return float(z_out * np.sqrt(RYDBERG_CM / binding_energy))
+    return float(z_out * np.sqrt(_constants()[0] / binding_energy))
 
 
 def lande_zeta(
@@ -63,7 +77,7 @@ def lande_zeta(
     s = LANDE_INNER_SCREENING.get(l, 30.0) if inner_screening is None else inner_screening
     z_in = max(Z - s, 1.0)
     z_out = ion_charge + 1
-    return ALPHA2_RYDBERG_CM * z_in**2 * z_out**2 / (n_star**3 * l * (l + 0.5) * (l + 1))
+    return _constants()[1] * z_in**2 * z_out**2 / (n_star**3 * l * (l + 0.5) * (l + 1))
 
 
 # Typical values (cm^-1) of the effective operators, used as starting values of a new

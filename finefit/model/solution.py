@@ -3,13 +3,25 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cache
 
 import numpy as np
-from scipy.constants import physical_constants
 
 from finefit.notation.jvalues import format_j
 
-G_ELECTRON = abs(physical_constants["electron g factor"][0])  # CODATA, via scipy.constants
+
+@cache
+def g_electron() -> float:
+    """|g_e| from CODATA via scipy.constants (imported here: scipy.constants costs 0.1-0.2 s)."""
+    from scipy.constants import physical_constants
+
+    return abs(physical_constants["electron g factor"][0])
+
+
+def __getattr__(name: str) -> float:  # PEP 562: G_ELECTRON is read on first use
+    if name == "G_ELECTRON":
+        return g_electron()
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 def lande_g_ls(L: int, S2: int, J2: int) -> float:
@@ -19,7 +31,7 @@ def lande_g_ls(L: int, S2: int, J2: int) -> float:
     J = J2 / 2.0
     S = S2 / 2.0
     jj = J * (J + 1.0)
-    return 1.0 + (G_ELECTRON - 1.0) * (jj + S * (S + 1.0) - L * (L + 1.0)) / (2.0 * jj)
+    return 1.0 + (g_electron() - 1.0) * (jj + S * (S + 1.0) - L * (L + 1.0)) / (2.0 * jj)
 
 
 @dataclass(frozen=True, eq=False)
