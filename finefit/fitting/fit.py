@@ -241,6 +241,8 @@ class FitProblem:
         key = x.tobytes()
         e = np.empty(len(self.included))
         J = np.zeros((len(self.included), len(self.names))) if jacobian else None
+        follow = self.options.follow_eigenvectors
+        xs = {parity: self._model_x(x, parity) for parity in self.models}
         for bkey, att in self.attachments.items():
             parity = bkey[0]
             b, rows, sel, grid, used = self._plan[bkey]
@@ -248,9 +250,8 @@ class FitProblem:
             if hit is not None and hit[0] == key and hit[3] is att.reference:
                 eig, idx = hit[1], hit[2]
             else:
-                eig = self.models[parity].eigen_block(b, self._model_x(x, parity))
-                idx = (att.follow(eig.vectors) if self.options.follow_eigenvectors
-                       else att.eigen_index)
+                eig = self.models[parity].eigen_block(b, xs[parity])
+                idx = att.follow(eig.vectors) if follow else att.eigen_index
                 self._cache[bkey] = (key, eig, idx, att.reference)
             if commit:
                 att.commit(idx, eig.vectors)
