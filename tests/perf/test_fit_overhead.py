@@ -25,7 +25,6 @@ def test_symmetric_eigh_is_numpy_eigh_bit_for_bit():
 
 def test_evaluate_equals_the_plain_numpy_route():
     model = Model(["3d2", "3d 4s"])
-    sol = model.solve({n: 1.0 for n in model.parameters})  # noqa: F841 - warm caches
     x_true = {n: v for n, v in INVENTED_IRON_GROUP.items() if n in model.parameters}
     for n in model.parameters:
         x_true.setdefault(n, 0.0)

@@ -110,9 +110,9 @@ def _corrupt_flip_payload(path):
     # change one number inside a coefficient matrix: still a valid npz, wrong model
     with np.load(path, allow_pickle=False) as npz:
         arrays = {k: npz[k] for k in npz.files}
-    name = next(k for k in arrays if k.endswith(".C") and arrays[k].size)
+    name = next(k for k in arrays if k.startswith("pack.") and arrays[k].dtype.kind == "f")
     arrays[name] = arrays[name].copy()
-    arrays[name].flat[0] += 1.0
+    arrays[name][arrays[name].size // 2] += 1.0
     with open(path, "wb") as fh:
         np.savez(fh, **arrays)
 
