@@ -34,6 +34,8 @@ import numpy as np
 # Bump when the file layout or the key changes (the engine's code is in the key already).
 CACHE_FORMAT = 1
 _OFF = {"0", "off", "no", "false", "none"}
+# Entries above this size are not written (4f6 5d, 2 725 levels, takes about 0.1 GiB).
+MAX_ENTRY_BYTES = 2**30
 _ENGINE_PACKAGES = ("notation", "angular", "model")
 _RESERVED = ("cache.key", "cache.checksum")
 
@@ -164,6 +166,8 @@ def save_model_arrays(
         k in _RESERVED or k.startswith("pack.") for k in data
     ):
         raise ValueError("model arrays must be plain arrays without the reserved names")
+    if sum(a.nbytes for a in data.values()) > MAX_ENTRY_BYTES:
+        return None  # a very large set: rebuilding costs less than the disk space
     data = _pack(data)
     data["cache.key"] = np.array(cache_key(configurations))
     data["cache.checksum"] = np.array(checksum(data))

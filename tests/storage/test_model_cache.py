@@ -234,3 +234,10 @@ def test_session_results_equal_with_and_without_cache(cache, monkeypatch):
     rw, rc = warm.report(), cold.report()
     assert [r.energy_calc for r in rw.levels] == [r.energy_calc for r in rc.levels]
     assert [r.label for r in rw.levels] == [r.label for r in rc.levels]
+
+
+def test_entries_above_the_size_limit_are_not_written(cache, monkeypatch):
+    monkeypatch.setattr(model_cache, "MAX_ENTRY_BYTES", 1000)
+    m = model_for(("3d2",))
+    assert m.parameters and model_cache.load_model_arrays(("3d2",)) is None
+    assert not cache.exists() or not list(cache.glob("*.npz"))
