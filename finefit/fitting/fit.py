@@ -516,10 +516,55 @@ class FitProblem:
         _, ok = label_compatibility(lvs, eig.vectors, coupling_data(model))
         return [lv.id for k, lv in enumerate(lvs) if lv.label and not ok[k, new_idx[k]]]
 
+    def _label_attachment(self, v: np.ndarray) -> dict:
+        """Every block attached the way the start does it (labels first) at ``v``."""
+        x = self.x_of(v)
+        lv_by_id = {lv.id: lv for lv in self.levels}
+        out = {}
+        for key, att in self.attachments.items():
+            parity, j2 = key
+            model = self.models[parity]
+            b = next(bb for bb in model.blocks if bb.J2 == j2)
+            eig = model.eigen_block(b, self._model_x(x, parity))
+            lvs = [lv_by_id[i] for i in att.level_ids]
+            idx, _ = attach_block(lvs, eig.energies, eig.vectors, coupling_data(model),
+                                  b.state_config, model.configurations, self.options.assignment)
+            if not np.array_equal(idx, att.eigen_index):
+                out[key] = idx
+        return out
+
     def _exchange_search(self, v, converged, message):
-        """Keep exchanges (and moves to free states) that lower chi-square after a refit."""
+        """Keep exchanges (and moves to free states) that lower chi-square after a refit.
+
+        The first candidate re-attaches every level the way the start does (labels
+        first, by overlap in their scheme): a local minimum reached with levels led away
+        from their labels is left this way when the labelled attachment fits better.
+        """
         chi2 = self._chi2(v)
         proposed: set[tuple] = set()
+        by_label = self._label_attachment(v)
+        if by_label:
+            base = self._snapshot()
+            for key, idx in by_label.items():
+                att = self.attachments[key]
+                att.commit(idx, att.reference)
+            self._cache = {}
+            try:
+                v_new, conv_new, _ = self._minimize(v)
+                chi2_new = self._chi2(v_new)
+            except FinefitError:
+                conv_new, chi2_new = False, np.inf
+            if conv_new and chi2_new < chi2 * (1 - 1e-6) - 1e-12:
+                v_settled, conv_settled, msg_settled = self._fit_to_fixed_point(v_new)
+                if not conv_settled:
+                    converged, message = False, msg_settled
+                self.warnings.append(
+                    "re-attached the levels by their labels after a local minimum: "
+                    f"chi-square {chi2:.6g} -> {self._chi2(v_settled):.6g}"
+                )
+                v, chi2 = v_settled, self._chi2(v_settled)
+            else:
+                self._restore(base)
         for _pass in range(6):
             improved = False
             for _d, who, change in self._candidate_moves(v):
@@ -703,6 +748,16 @@ class FitProblem:
                 + " (fix or link them)"
             )
         warnings.extend(getattr(self, "diagnoses", []))
+        explicit = np.array([lv.uncertainty is not None for lv in self.included])
+        if fitted and dof > 0 and explicit.sum() >= max(1, explicit.size // 2):
+            z = resid[explicit] / self.u[explicit]
+            ratio = math.sqrt(float(np.sum(z**2)) / max(int(explicit.sum()) - n_free, 1))
+            if ratio > 3.0:
+                warnings.append(
+                    f"the residuals are {ratio:.3g} times the levels' stated uncertainties: "
+                    "a wrong attachment, a missing interaction or a local minimum; try "
+                    "several starts (--starts)"
+                )
         warnings.extend(self._range_warnings(values, kinds, status))
         weak = self._weakly_determined(errors, values, status, undetermined_names)
         if weak:
