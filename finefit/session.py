@@ -17,10 +17,19 @@ from datetime import UTC, datetime
 from functools import lru_cache
 from pathlib import Path
 
-from finefit.errors import FinefitError
+from finefit.errors import FinefitError, quote
 from finefit.fitting.fit import FitProblem
 from finefit.fitting.results import FitResult
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
+from finefit.fitting.validation import (
+    check_configurations,
+    check_ion,
+    check_levels,
+    check_number,
+    check_parameter,
+    check_text,
+    validate_session,
+)
 from finefit.model.hamiltonian import Model
 from finefit.notation.configuration import parse_configuration
 from finefit.notation.jvalues import parse_j
@@ -63,7 +72,11 @@ class Session:
         self.note = data.note
         self.options = data.options
         self.parameter_sets: list[ParameterSet] = list(data.parameter_sets)
-        self.configurations = [str(parse_configuration(c)) for c in data.configurations]
+        # the ion and the electron count of every configuration are checked before any
+        # model is built (a configuration that cannot exist must not cost a build)
+        check_ion(self.ion.Z, self.ion.charge, self.ion.ionization_limit, self.ion.name)
+        self.configurations = check_configurations(list(data.configurations), self.ion.Z,
+                                                   self.ion.charge)
         self._sets = group_by_parity(self.configurations)
         self.models = {p: model_for(cfgs) for p, cfgs in self._sets.items()}
         self.parameters: dict[str, ParameterSetting] = {}
@@ -85,6 +98,8 @@ class Session:
             self._check_level(lv)
             self.levels.append(lv)
         self.last_result: FitResult | None = None
+        self.source_text: str | None = None  # the file's text as read or last written
+        self.warnings: list[str] = self.validate()
 
     # ------------------------------------------------------------------ creation
     @classmethod
@@ -99,10 +114,8 @@ class Session:
     ) -> Session:
         if isinstance(configurations, str):
             configurations = [configurations]
-        if not isinstance(Z, int) or not 1 <= Z <= 118:
-            raise FinefitError(f"Z = {Z!r} is not a nuclear charge (1..118)", "Z")
-        if not isinstance(charge, int) or not 0 <= charge < Z:
-            raise FinefitError(f"charge = {charge!r} must be 0 .. Z-1", "charge")
+        check_ion(Z, charge, ionization_limit, name)
+        check_text(title or "", "title")
         data = SessionData(
             ion=Ion(Z, charge, ionization_limit, name), configurations=list(configurations),
             parameters={}, levels=[], options=FitOptions(), title=title,
@@ -111,9 +124,25 @@ class Session:
 
     @classmethod
     def load(cls, path: str | Path) -> Session:
+        """Read and validate a session file (the same validation every save runs)."""
         p = Path(path)
         text = read_text(p, "session file")
-        return cls(parse_session(text, source=str(p)), path=p)
+        data = parse_session(text, source=str(p))
+        try:
+            s = cls(data, path=p)
+        except FinefitError as exc:
+            raise FinefitError(f"{quote(str(p))}: {exc}", exc.item) from None
+        s.source_text = text
+        return s
+
+    def validate(self) -> list[str]:
+        """Check the whole session as the reader will (no eigen-solve); returns warnings.
+
+        Raises FinefitError naming the first offending item.
+        """
+        return validate_session(self.ion, self.configurations, self.models, self.parameters,
+                                self.levels, self.options, self.parameter_sets, self.title,
+                                self.note)
 
     # ------------------------------------------------------------------ persistence
     def data(self) -> SessionData:
@@ -127,12 +156,20 @@ class Session:
         return dump_session(self.data())
 
     def save(self, path: str | Path | None = None) -> Path:
-        """Save atomically; the previous file is kept as ``<name>.bak``."""
+        """Save atomically; the previous file is kept as ``<name>.bak``.
+
+        The session is validated first and the text written is read back as the reader
+        will read it, so a save never leaves a file finefit refuses to open.
+        """
         target = Path(path) if path else self.path
         if target is None:
             raise FinefitError("no file name given for saving the session", "path")
-        atomic_write_text(target, self.to_toml())
+        self.warnings = self.validate()
+        text = self.to_toml()
+        Session(parse_session(text, source=str(target)))  # what the reader will see
+        atomic_write_text(target, text)
         self.path = target
+        self.source_text = text
         return target
 
     def copy(self) -> Session:
@@ -153,14 +190,15 @@ class Session:
         """Change a parameter; arguments left out keep their current setting."""
         if name not in self.parameters:
             raise FinefitError(
-                f"parameter {name!r} does not exist; known: {', '.join(self.parameters)}", name
-            )
+                f"parameter {quote(name)} does not exist; known: {', '.join(self.parameters)}",
+                name)
         s = self.parameters[name].copy()
         if value is not None:
             try:
                 s.value = float(value)
             except (TypeError, ValueError):
-                raise FinefitError(f"value of {name!r} must be a number: {value!r}", name) from None
+                raise FinefitError(f"value of {quote(name)} must be a number: {quote(value)}",
+                                   name) from None
         if vary is not None:
             s.vary = bool(vary)
         if min != "keep":
@@ -171,7 +209,7 @@ class Session:
             s.link = link or None
         if ab_initio != "keep":
             s.ab_initio = None if ab_initio is None else float(ab_initio)
-        s.check(name)
+        check_parameter(name, s)
         self.parameters[name] = s
         return s
 
@@ -198,8 +236,7 @@ class Session:
                     lv.id,
                 )
             lv.configuration = c
-        if not math.isfinite(lv.energy):
-            raise FinefitError(f"level {lv.id}: energy must be finite", lv.id)
+        check_levels([lv], self.models, self.configurations)
 
     def _new_id(self) -> str:
         used = {lv.id for lv in self.levels}
@@ -229,17 +266,18 @@ class Session:
             e = float(energy)
         except (TypeError, ValueError):
             raise FinefitError(f"energy must be a number, got {energy!r}", "energy") from None
-        if uncertainty is not None and not float(uncertainty) > 0:
-            raise FinefitError("uncertainty must be positive", "uncertainty")
+        if uncertainty is not None:
+            uncertainty = check_number(uncertainty, "uncertainty", positive=True)
         lid = id or self._new_id()
         if any(lv.id == lid for lv in self.levels):
-            raise FinefitError(f"level id {lid!r} is already used", lid)
+            raise FinefitError(f"level id {quote(lid)} is already used", lid)
         lv = ObservedLevel(
             id=lid, energy=e, J=parse_j(J), parity=parity, uncertainty=uncertainty,
             configuration=configuration, label=label, include=include, g=g, note=note,
             state=state,
         )
         self._check_level(lv)
+        check_levels(self.levels + [lv], self.models, self.configurations)
         self.levels.append(lv)
         return lid
 
@@ -247,7 +285,7 @@ class Session:
         for lv in self.levels:
             if lv.id == level_id:
                 return lv
-        raise FinefitError(f"no level with id {level_id!r}", level_id)
+        raise FinefitError(f"no level with id {quote(level_id)}", level_id)
 
     def update_level(self, level_id: str, **changes) -> ObservedLevel:
         """Change fields of an observed level (validated as a whole)."""
@@ -265,11 +303,18 @@ class Session:
             except (TypeError, ValueError):
                 raise FinefitError(f"energy must be a number, got {changes['energy']!r}",
                                    "energy") from None
-        if changes.get("uncertainty") is not None and not float(changes["uncertainty"]) > 0:
-            raise FinefitError("uncertainty must be positive", "uncertainty")
+        if changes.get("uncertainty") is not None:
+            changes["uncertainty"] = check_number(changes["uncertainty"],
+                                                  f"level {quote(level_id)}: uncertainty",
+                                                  positive=True)
+        if changes.get("g") is not None:
+            changes["g"] = check_number(changes["g"], f"level {quote(level_id)}: g")
         new = replace(lv, **changes)
         self._check_level(new)
-        self.levels[self.levels.index(lv)] = new
+        i = self.levels.index(lv)
+        check_levels(self.levels[:i] + [new] + self.levels[i + 1:], self.models,
+                     self.configurations)
+        self.levels[i] = new
         return new
 
     def remove_level(self, level_id: str) -> ObservedLevel:
@@ -442,10 +487,7 @@ class Session:
     # ------------------------------------------------------------------ parameter sets
     def keep(self, result: FitResult, name: str, note: str = "") -> ParameterSet:
         """Store a fit as a named, timestamped parameter set."""
-        if not name or not name.strip():
-            raise FinefitError("a parameter set needs a name", "name")
-        if any(ps.name == name for ps in self.parameter_sets):
-            raise FinefitError(f"a parameter set named {name!r} exists already", name)
+        self.check_set_name(name)
         ps = ParameterSet(
             name=name, created=datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
             values=dict(result.values),
@@ -456,12 +498,21 @@ class Session:
         self.parameter_sets.append(ps)
         return ps
 
+    def check_set_name(self, name: str) -> None:
+        """A new parameter set's name: non-empty, printable, not yet used."""
+        if not isinstance(name, str) or not name.strip():
+            raise FinefitError("a parameter set needs a name (it is empty)", "name")
+        check_text(name, "parameter set name")
+        if any(ps.name == name for ps in self.parameter_sets):
+            raise FinefitError(f"a parameter set named {quote(name)} exists already", name)
+
     def parameter_set(self, name: str) -> ParameterSet:
         for ps in self.parameter_sets:
             if ps.name == name:
                 return ps
         known = ", ".join(ps.name for ps in self.parameter_sets) or "none"
-        raise FinefitError(f"no parameter set named {name!r} (saved sets: {known})", name)
+        raise FinefitError(f"no parameter set named {quote(name)} (saved sets: "
+                           f"{quote(known, 400)[1:-1]})", name)
 
     def use_set(self, name: str) -> None:
         """Start from a saved parameter set's values."""
