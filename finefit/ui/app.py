@@ -22,7 +22,7 @@ from textual.screen import ModalScreen
 from textual.widgets import DataTable, Footer, Header, Static, TabbedContent, TabPane
 from textual.worker import get_current_worker
 
-from finefit.errors import FinefitError
+from finefit.errors import FinefitError, quote
 from finefit.fitting.fit import FitCancelled
 from finefit.fitting.results import FitResult
 from finefit.notation.jvalues import format_j
@@ -30,7 +30,7 @@ from finefit.session import Session
 from finefit.ui import pictures
 from finefit.ui.commands import COMMANDS
 from finefit.ui.screens import ChoiceScreen, FormScreen, HelpScreen, PickScreen
-from finefit.workspace import Workspace
+from finefit.workspace import Recovery, Workspace
 
 SORTS = ("energy", "|O-C|", "id", "J")
 
@@ -51,10 +51,12 @@ class WorkspaceApp(App):
     TITLE = "finefit"
     BINDINGS = _bindings()
 
-    def __init__(self, workspace: Workspace, offer_recovery: bool = False) -> None:
+    def __init__(self, workspace: Workspace, offer_recovery: bool = False,
+                 recovery: Recovery | None = None) -> None:
         super().__init__()
         self.ws = workspace
-        self.offer_recovery = offer_recovery
+        self.offer_recovery = offer_recovery or recovery is not None
+        self.recovery = recovery
         self.result: FitResult | None = None
         self.previous_sigma: float | None = None
         self.fit_running = False
@@ -141,7 +143,23 @@ class WorkspaceApp(App):
         self._apply_detail_visibility()
         self.refresh_all()
         lt.focus()
-        if self.offer_recovery:
+        rec = self.recovery
+        if rec is not None and rec.file_changed:
+            lines = ["Unsaved edits from an earlier session were found in the autosave "
+                     "journal, and the file has changed since they started."]
+            if rec.edits:
+                lines += ["", "Your unsaved edits:"] + [f"  {x}" for x in rec.edits]
+            if rec.outside:
+                lines += ["", "Changed in the file since:"] + [f"  {x}" for x in rec.outside]
+            if rec.file_error:
+                lines += ["", f"The file cannot be read now: {rec.file_error}"]
+            self.push_screen(
+                ChoiceScreen("\n".join(lines),
+                             [("j", "keep my edits"), ("f", "keep the file"),
+                              ("b", "keep both (merge)")]),
+                self._recovery_answer,
+            )
+        elif self.offer_recovery:
             self.push_screen(
                 ChoiceScreen(
                     "Unsaved changes from an earlier session were found in the autosave "
@@ -155,12 +173,25 @@ class WorkspaceApp(App):
 
     def _recovery_answer(self, answer: str | None) -> None:
         path = self.ws.session.path
-        if answer == "r" and path is not None:
-            self.ws = Workspace.recover(path)
-            self.message = "recovered the unsaved changes from the journal (not yet saved)"
-        else:
+        rec = self.recovery or (Workspace.pending_recovery(path) if path else None)
+        choice = {"r": "journal", "j": "journal", "f": "file", "b": "both"}.get(answer or "")
+        if rec is not None and choice is not None:
+            try:
+                self.ws, self.message = rec.keep(choice)
+            except FinefitError as exc:  # e.g. the two versions cannot be merged
+                self.notify(str(exc), title="not recovered", severity="error")
+                self.push_screen(ChoiceScreen(str(exc), [("j", "keep my edits"),
+                                                         ("f", "keep the file")]),
+                                 self._recovery_answer)
+                return
+        elif rec is not None and answer == "d":
             self.ws.discard_journal()
             self.message = "discarded the autosave journal"
+        elif rec is not None:  # dismissed: the journal is kept as a visible file
+            copy_path = rec.keep_journal_copy()
+            self.ws.discard_journal()
+            self.message = f"the journal's edits are kept in {copy_path.name}"
+        self.recovery = None
         self.refresh_all()
         self.schedule_fit()
 
@@ -915,12 +946,13 @@ class WorkspaceApp(App):
 def make_app(path: str | Path) -> WorkspaceApp:
     """The workspace for one session file (used by the command line and the tests)."""
     p = Path(path)
-    pending = Workspace.pending_journal(p)
+    pending = Workspace.pending_recovery(p)
     if not p.exists() and pending is None:
-        raise FinefitError(f"session file {str(p)!r} does not exist", str(p))
-    if p.exists():
+        raise FinefitError(f"session file {quote(str(p))} does not exist", str(p))
+    if p.exists() and (pending is None or pending.file_error is None):
         ws = Workspace(Session.load(p))
-    else:
-        ws = Workspace.recover(p)
-        pending = None
-    return WorkspaceApp(ws, offer_recovery=pending is not None)
+    elif pending is not None:  # the file is missing or unreadable: start from the journal
+        ws, _ = pending.keep("journal")
+        if not p.exists():
+            pending = None
+    return WorkspaceApp(ws, recovery=pending)
