@@ -852,7 +852,10 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # usage errors (exit 2) and --help (exit 0) end here
+        return int(exc.code or 0) if isinstance(exc.code, int | None) else EXIT_BAD_INPUT
     try:
         return int(args.func(args))
     except FinefitError as exc:

@@ -8,7 +8,7 @@ import re
 # produce 5 MB on stderr); a whole message is kept below MAX_MESSAGE characters.
 MAX_TOKEN = 80
 MAX_MESSAGE = 2000
-_LONG_RUN = re.compile(rf"\S{{{MAX_TOKEN + 1},}}")
+_LONG_RUN = re.compile(rf"\S{{{MAX_TOKEN + 40},}}")  # quoted tokens stay below
 
 
 def shorten(text: str, limit: int = MAX_TOKEN) -> str:
@@ -29,9 +29,17 @@ def quote(token: object, limit: int = MAX_TOKEN) -> str:
     return shorten(repr(token), limit)
 
 
+def quote_path(path: object, limit: int = MAX_TOKEN) -> str:
+    """A file path for a message: long paths keep their end (the file's own name)."""
+    text = str(path)
+    if len(text) <= limit:
+        return repr(text)
+    return repr("…" + text[-(limit - 1):])
+
+
 def clip_message(message: str) -> str:
     """Safety net for messages built elsewhere: long runs and long messages are cut."""
-    message = _LONG_RUN.sub(lambda m: shorten(m.group(0)), message)
+    message = _LONG_RUN.sub(lambda m: shorten(m.group(0), MAX_TOKEN + 20), message)
     if len(message) > MAX_MESSAGE:
         message = message[: MAX_MESSAGE - 40] + f" …[message cut, {len(message)} characters]"
     return message

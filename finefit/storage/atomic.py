@@ -17,7 +17,7 @@ import re
 import secrets
 from pathlib import Path
 
-from finefit.errors import FinefitError, quote
+from finefit.errors import FinefitError, quote_path
 
 _PREFIX_LEN = 100  # of the target's name inside temporary names (names stay < 255 bytes)
 
@@ -27,15 +27,15 @@ def read_text(path: str | os.PathLike, what: str) -> str:
     p = Path(path)
     try:
         if p.is_dir():
-            raise FinefitError(f"{what} {quote(str(p))} is a folder, not a file", str(p))
+            raise FinefitError(f"{what} {quote_path(p)} is a folder, not a file", str(p))
         return p.read_text(encoding="utf-8")
     except FileNotFoundError:
-        raise FinefitError(f"{what} {quote(str(p))} does not exist", str(p)) from None
+        raise FinefitError(f"{what} {quote_path(p)} does not exist", str(p)) from None
     except UnicodeDecodeError as exc:
-        raise FinefitError(f"cannot read {what} {quote(str(p))}: not UTF-8 text "
+        raise FinefitError(f"cannot read {what} {quote_path(p)}: not UTF-8 text "
                            f"(byte {exc.start})", str(p)) from None
     except OSError as exc:
-        raise FinefitError(f"cannot read {what} {quote(str(p))}: "
+        raise FinefitError(f"cannot read {what} {quote_path(p)}: "
                            f"{exc.strerror or exc}", str(p)) from None
 
 
@@ -213,7 +213,7 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes, backup: bool = True
     tmp = bak_tmp = None
     try:
         if target.is_dir():
-            raise FinefitError(f"{quote(str(shown))} is a folder, not a file", str(shown))
+            raise FinefitError(f"{quote_path(shown)} is a folder, not a file", str(shown))
         folder.mkdir(parents=True, exist_ok=True)
         remove_stale_temporary_files(target)
         try:
@@ -237,7 +237,7 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes, backup: bool = True
         reason = exc.strerror or str(exc)
         if exc.errno in (errno.EROFS, errno.EACCES, errno.EPERM):
             reason += " (no permission to write there)"
-        raise FinefitError(f"cannot write {quote(str(shown))}: {reason}", str(shown)) from None
+        raise FinefitError(f"cannot write {quote_path(shown)}: {reason}", str(shown)) from None
     finally:
         _unlink_quietly(bak_tmp)
         _unlink_quietly(tmp)

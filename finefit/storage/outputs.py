@@ -16,7 +16,7 @@ import os
 from collections.abc import Iterable
 from pathlib import Path
 
-from finefit.errors import FinefitError, quote
+from finefit.errors import FinefitError, quote_path
 from finefit.storage.atomic import atomic_write_bytes, real_target
 
 MANIFEST = ".finefit-outputs.json"
@@ -68,21 +68,21 @@ class OutputGuard:
             if target in self.protected:
                 if not self.force:
                     raise FinefitError(
-                        f"{quote(shown)} is the session file (or its backup or journal); "
+                        f"{quote_path(shown)} is the session file (or its backup or journal); "
                         "an output would overwrite it (use --force if you mean it)", shown)
             if target.name == MANIFEST:
-                raise FinefitError(f"{quote(shown)} is finefit's list of written files", shown)
+                raise FinefitError(f"{quote_path(shown)} is finefit's list of written files", shown)
             if target.is_dir():
-                raise FinefitError(f"{quote(shown)} is a folder, not a file", shown)
+                raise FinefitError(f"{quote_path(shown)} is a folder, not a file", shown)
             if target.exists() and not self.force and not self._owned(target):
                 raise FinefitError(
-                    f"{quote(shown)} exists and was not written by finefit (or was changed "
+                    f"{quote_path(shown)} exists and was not written by finefit (or was changed "
                     "since); use --force to overwrite it (its content goes to .bak)", shown)
             parent = target.parent
             while not parent.exists() and parent != parent.parent:
                 parent = parent.parent
             if not parent.is_dir():
-                raise FinefitError(f"cannot write {quote(shown)}: {quote(str(parent))} is a "
+                raise FinefitError(f"cannot write {quote_path(shown)}: {quote_path(parent)} is a "
                                    "file, not a folder", shown)
 
     def write(self, path: str | os.PathLike, data: bytes | str) -> Path:
@@ -106,5 +106,5 @@ def check_output_folder(folder: str | os.PathLike) -> Path:
     """A folder for outputs: an existing file of that name is an error."""
     p = Path(folder)
     if p.exists() and not p.is_dir():
-        raise FinefitError(f"output folder {quote(str(p))} is a file, not a folder", str(p))
+        raise FinefitError(f"output folder {quote_path(p)} is a file, not a folder", str(p))
     return p
