@@ -134,53 +134,88 @@ def _keep_nature(fd: int, like: os.stat_result | None, new_mode: int) -> None:
     os.fchmod(fd, like.st_mode & 0o7777)  # after chown, which clears set-id bits
 
 
-def _write_named(folder: Path, prefix: str, data: bytes, like: os.stat_result | None,
-                 new_mode: int) -> str:
-    """Write ``data`` to a new temporary file in ``folder``; returns its name.
+class _Temp:
+    """A temporary file in the target's folder holding ``data``, fsync'ed.
 
-    Where the system offers unnamed files (O_TMPFILE) the data are written and
-    fsync'ed before the file gets a name, so a kill during the write leaves nothing.
+    Where the system offers unnamed files (O_TMPFILE) the file gets a name only in
+    :meth:`name`, just before it is renamed over its target, so a process killed while
+    writing leaves nothing behind; elsewhere it is a named file from the start.
     """
-    fd = None
-    if hasattr(os, "O_TMPFILE"):
+
+    def __init__(self, folder: Path, prefix: str, data: bytes, like: os.stat_result | None,
+                 new_mode: int) -> None:
+        self.folder, self.prefix, self.data = folder, prefix, data
+        self.like, self.new_mode = like, new_mode
+        self.fd: int | None = None
+        self.path: str | None = None
+        if hasattr(os, "O_TMPFILE"):
+            try:
+                self.fd = os.open(folder, os.O_TMPFILE | os.O_WRONLY, 0o600)
+            except OSError:
+                self.fd = None
+        if self.fd is not None:
+            try:
+                _keep_nature(self.fd, like, new_mode)
+                _write_all(self.fd, data)
+            except BaseException:
+                self.close()
+                raise
+        else:
+            self.path = self._write_named()
+
+    def _write_named(self) -> str:
+        while True:
+            name = os.path.join(self.folder, f"{self.prefix}{secrets.token_hex(6)}.tmp")
+            try:
+                fd = os.open(name, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+                break
+            except FileExistsError:
+                continue
         try:
-            fd = os.open(folder, os.O_TMPFILE | os.O_WRONLY, 0o600)
-        except OSError:
-            fd = None
-    if fd is not None:
-        name = None
+            _keep_nature(fd, self.like, self.new_mode)
+            _write_all(fd, self.data)
+        except BaseException:
+            os.close(fd)
+            _unlink_quietly(name)
+            raise
+        os.close(fd)
+        return name
+
+    def name(self) -> str:
+        """Give the file a name in its folder (done once) and return it."""
+        if self.path is not None:
+            return self.path
+        dir_fd = os.open(self.folder, os.O_RDONLY)
         try:
-            _keep_nature(fd, like, new_mode)
-            _write_all(fd, data)
             for _ in range(20):
-                name = os.path.join(folder, f"{prefix}{secrets.token_hex(6)}.tmp")
+                base = f"{self.prefix}{secrets.token_hex(6)}.tmp"
                 try:
-                    os.link(f"/proc/self/fd/{fd}", name)
-                    return name
+                    # with folder descriptors os.link calls linkat(AT_SYMLINK_FOLLOW),
+                    # which names the unnamed file through /proc (plain link() would not)
+                    os.link(f"/proc/self/fd/{self.fd}", base, src_dir_fd=dir_fd,
+                            dst_dir_fd=dir_fd, follow_symlinks=True)
                 except FileExistsError:
-                    name = None
                     continue
                 except OSError:
-                    name = None
-                    break  # no /proc: fall back to a named temporary file
+                    break  # no /proc: write a named file instead
+                self.path = os.path.join(self.folder, base)
+                break
         finally:
-            os.close(fd)
-    while True:
-        name = os.path.join(folder, f"{prefix}{secrets.token_hex(6)}.tmp")
-        try:
-            fd = os.open(name, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
-            break
-        except FileExistsError:
-            continue
-    try:
-        _keep_nature(fd, like, new_mode)
-        _write_all(fd, data)
-    except BaseException:
-        os.close(fd)
-        _unlink_quietly(name)
-        raise
-    os.close(fd)
-    return name
+            os.close(dir_fd)
+        self.close()
+        if self.path is None:
+            self.path = self._write_named()
+        return self.path
+
+    def close(self) -> None:
+        if self.fd is not None:
+            os.close(self.fd)
+            self.fd = None
+
+    def discard(self) -> None:
+        self.close()
+        _unlink_quietly(self.path)
+        self.path = None
 
 
 def _write_all(fd: int, data: bytes) -> None:
@@ -221,17 +256,16 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes, backup: bool = True
         except FileNotFoundError:
             like = None
         new_mode = 0o666 & ~_umask()
-        prefix = _temp_prefix(target.name)
-        tmp = _write_named(folder, prefix, data, like, new_mode)
+        tmp = _Temp(folder, _temp_prefix(target.name), data, like, new_mode)
         if backup and like is not None:
             with open(target, "rb") as fh:
                 old = fh.read()
             bak = target.with_name(target.name + ".bak")
-            bak_tmp = _write_named(folder, _temp_prefix(bak.name), old, like, new_mode)
-            os.replace(bak_tmp, bak)
-            bak_tmp = None
-        os.replace(tmp, target)
-        tmp = None
+            bak_tmp = _Temp(folder, _temp_prefix(bak.name), old, like, new_mode)
+            os.replace(bak_tmp.name(), bak)
+            bak_tmp.path = None
+        os.replace(tmp.name(), target)
+        tmp.path = None
         _fsync_folder(folder)
     except OSError as exc:
         reason = exc.strerror or str(exc)
@@ -239,8 +273,9 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes, backup: bool = True
             reason += " (no permission to write there)"
         raise FinefitError(f"cannot write {quote_path(shown)}: {reason}", str(shown)) from None
     finally:
-        _unlink_quietly(bak_tmp)
-        _unlink_quietly(tmp)
+        for t in (bak_tmp, tmp):
+            if t is not None:
+                t.discard()
     return shown
 
 
