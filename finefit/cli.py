@@ -20,6 +20,7 @@ from rich.text import Text
 from finefit.errors import FinefitError, clip_message, quote
 from finefit.fitting.validation import MAX_G, MAX_MAGNITUDE, parse_number
 from finefit.notation.jvalues import format_j
+from finefit.storage.atomic import check_path
 
 EXIT_OK, EXIT_NOT_CONVERGED, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
 
@@ -857,6 +858,10 @@ def main(argv: list[str] | None = None) -> int:
     except SystemExit as exc:  # usage errors (exit 2) and --help (exit 0) end here
         return int(exc.code or 0) if isinstance(exc.code, int | None) else EXIT_BAD_INPUT
     try:
+        for attr in ("session", "output", "lines", "table"):  # file names from the user
+            value = getattr(args, attr, None)
+            if isinstance(value, str):
+                check_path(value)
         return int(args.func(args))
     except FinefitError as exc:
         print(f"finefit: error: {exc}", file=sys.stderr)

@@ -24,7 +24,7 @@ _PREFIX_LEN = 100  # of the target's name inside temporary names (names stay < 2
 
 def read_text(path: str | os.PathLike, what: str) -> str:
     """A text file's content; a missing or unreadable file is a FinefitError naming it."""
-    p = Path(path)
+    p = check_path(path)
     try:
         if p.is_dir():
             raise FinefitError(f"{what} {quote_path(p)} is a folder, not a file", str(p))
@@ -39,9 +39,17 @@ def read_text(path: str | os.PathLike, what: str) -> str:
                            f"{exc.strerror or exc}", str(p)) from None
 
 
+def check_path(path: str | os.PathLike) -> Path:
+    """``path`` as a Path; a NUL character (which no file name can hold) is a FinefitError."""
+    text = os.fspath(path)
+    if "\x00" in str(text):
+        raise FinefitError(f"file name {quote_path(text)} contains a NUL character", str(text))
+    return Path(text)
+
+
 def real_target(path: str | os.PathLike) -> Path:
     """The file a save of ``path`` writes: symbolic links followed to their target."""
-    return Path(os.path.realpath(os.fspath(path)))
+    return Path(os.path.realpath(check_path(path)))
 
 
 def _umask() -> int:

@@ -17,7 +17,7 @@ from collections.abc import Iterable
 from pathlib import Path
 
 from finefit.errors import FinefitError, quote_path
-from finefit.storage.atomic import atomic_write_bytes, real_target
+from finefit.storage.atomic import atomic_write_bytes, check_path, real_target
 
 MANIFEST = ".finefit-outputs.json"
 
@@ -104,7 +104,7 @@ class OutputGuard:
 
 def check_output_folder(folder: str | os.PathLike) -> Path:
     """A folder for outputs: an existing file of that name is an error."""
-    p = Path(folder)
+    p = check_path(folder)
     if p.exists() and not p.is_dir():
         raise FinefitError(f"output folder {quote_path(p)} is a file, not a folder", str(p))
     return p
