@@ -28,6 +28,7 @@ from finefit.fitting.validation import (
     check_number,
     check_parameter,
     check_text,
+    parse_number,
     validate_session,
 )
 from finefit.model.hamiltonian import Model
@@ -45,6 +46,16 @@ from finefit.storage.session_file import (
 # Kinds varied by default in a new session; CI integrals and effective corrections are
 # commonly held fixed at scaled ab initio values until the data can carry them.
 DEFAULT_VARY = {"Eav", "F", "G", "zeta"}
+
+
+def _number(value: object, what: str) -> float:
+    """A number given as text (ASCII digits only) or as a number; finite, physical size."""
+    if isinstance(value, str):
+        return parse_number(value, what)
+    try:
+        return check_number(float(value), what)
+    except (TypeError, ValueError, OverflowError):
+        raise FinefitError(f"{what} must be a number, got {quote(value)}", what) from None
 
 
 @lru_cache(maxsize=16)
@@ -194,11 +205,7 @@ class Session:
                 name)
         s = self.parameters[name].copy()
         if value is not None:
-            try:
-                s.value = float(value)
-            except (TypeError, ValueError):
-                raise FinefitError(f"value of {quote(name)} must be a number: {quote(value)}",
-                                   name) from None
+            s.value = _number(value, f"value of {quote(name)}")
         if vary is not None:
             s.vary = bool(vary)
         if min != "keep":
@@ -262,10 +269,7 @@ class Session:
         """Add an observed level; returns its id."""
         if parity not in ("even", "odd"):
             raise FinefitError(f"parity must be 'even' or 'odd', got {parity!r}", "parity")
-        try:
-            e = float(energy)
-        except (TypeError, ValueError):
-            raise FinefitError(f"energy must be a number, got {energy!r}", "energy") from None
+        e = _number(energy, "energy")
         if uncertainty is not None:
             uncertainty = check_number(uncertainty, "uncertainty", positive=True)
         lid = id or self._new_id()
@@ -298,11 +302,7 @@ class Session:
         if "J" in changes:
             changes["J"] = parse_j(changes["J"])
         if "energy" in changes:
-            try:
-                changes["energy"] = float(changes["energy"])
-            except (TypeError, ValueError):
-                raise FinefitError(f"energy must be a number, got {changes['energy']!r}",
-                                   "energy") from None
+            changes["energy"] = _number(changes["energy"], "energy")
         if changes.get("uncertainty") is not None:
             changes["uncertainty"] = check_number(changes["uncertainty"],
                                                   f"level {quote(level_id)}: uncertainty",

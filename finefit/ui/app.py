@@ -25,6 +25,7 @@ from textual.worker import get_current_worker
 from finefit.errors import FinefitError, quote
 from finefit.fitting.fit import FitCancelled
 from finefit.fitting.results import FitResult
+from finefit.fitting.validation import parse_number
 from finefit.notation.jvalues import format_j
 from finefit.session import Session
 from finefit.ui import pictures
@@ -666,11 +667,11 @@ class WorkspaceApp(App):
             if values is None:
                 return
             try:
-                energy = float(values["energy"])
-                unc = float(values["uncertainty"]) if values["uncertainty"].strip() else None
-            except ValueError:
-                self.notify(f"{values['energy']!r} / {values['uncertainty']!r}: energy and "
-                            "uncertainty must be numbers", title="not changed", severity="error")
+                energy = parse_number(values["energy"], "energy")
+                unc = parse_number(values["uncertainty"], "uncertainty", positive=True) \
+                    if values["uncertainty"].strip() else None
+            except ValueError as exc:  # FinefitError names the field
+                self.notify(str(exc), title="not changed", severity="error")
                 return
             label = values["label"].strip() or None
             self.apply_edit(f"edited {lid}", lambda s: s.update_level(
@@ -691,12 +692,11 @@ class WorkspaceApp(App):
             if values is None:
                 return
             try:
-                value = float(values["value"])
-                lo = float(values["min"]) if values["min"].strip() else None
-                hi = float(values["max"]) if values["max"].strip() else None
-            except ValueError:
-                self.notify("value and bounds must be numbers", title="not changed",
-                            severity="error")
+                value = parse_number(values["value"], "value")
+                lo = parse_number(values["min"], "min") if values["min"].strip() else None
+                hi = parse_number(values["max"], "max") if values["max"].strip() else None
+            except ValueError as exc:  # FinefitError names the field
+                self.notify(str(exc), title="not changed", severity="error")
                 return
             self.apply_edit(f"edited {name}",
                             lambda s: s.set_parameter(name, value, min=lo, max=hi))
@@ -717,10 +717,9 @@ class WorkspaceApp(App):
                 return
             unc = values["uncertainty"].strip()
             try:
-                unc_v = float(unc) if unc else None
-            except ValueError:
-                self.notify(f"uncertainty {unc!r} is not a number", severity="error",
-                            title="not added")
+                unc_v = parse_number(unc, "uncertainty", positive=True) if unc else None
+            except ValueError as exc:  # FinefitError names the field
+                self.notify(str(exc), severity="error", title="not added")
                 return
             self.apply_edit("added a level", lambda s: s.add_level(
                 energy=values["energy"], J=values["J"], parity=values["parity"].strip(),
