@@ -34,6 +34,14 @@ class Snapshot:
     description: str
 
 
+class FileChangedError(FinefitError):
+    """The session file changed on disk since the workspace read or last saved it."""
+
+    def __init__(self, message: str, recovery: Recovery) -> None:
+        super().__init__(message, str(recovery.path))
+        self.recovery = recovery
+
+
 def journal_path(session_path: Path) -> Path:
     return session_path.with_name(f".{session_path.name}.journal")
 
@@ -363,9 +371,41 @@ class Workspace:
         self._write_journal()
         return snap.description
 
-    def save(self, path: str | Path | None = None) -> Path:
+    def changed_on_disk(self) -> Recovery | None:
+        """When the file differs from the text these edits started from (someone changed
+        it meanwhile), a Recovery comparing the workspace with it; else None."""
+        p = self.session.path
+        if p is None or self.base_text is None:
+            return None
+        try:
+            now = p.read_text(encoding="utf-8")
+        except FileNotFoundError:
+            now = None
+        except (OSError, UnicodeDecodeError) as exc:
+            rec = Recovery(p, self.session.to_toml(), self.base_text, "", str(exc))
+            return rec
+        if now == self.base_text:
+            return None
+        rec = Recovery(p, self.session.to_toml(), self.base_text, now)
+        if now is not None:
+            try:
+                rec.outside = describe_changes(_normal(self.base_text, "read"),
+                                               _normal(now, str(p)))
+            except FinefitError as exc:
+                rec.file_error = str(exc)
+        return rec
+
+    def save(self, path: str | Path | None = None, overwrite: bool = False) -> Path:
+        """Save; a file changed on disk since it was read is not overwritten silently:
+        FileChangedError (with a Recovery to merge) unless ``overwrite``."""
         if path is None and self.session.path is None:
             raise FinefitError("no file name to save to", "path")
+        if path is None and not overwrite:
+            rec = self.changed_on_disk()
+            if rec is not None:
+                raise FileChangedError(
+                    f"{quote(str(rec.path))} was changed on disk since it was read: "
+                    + ("; ".join(rec.outside[:3]) or "content differs"), rec)
         old = [self.journal, self._base_path]
         p = self.session.save(path)
         self.dirty = False

@@ -31,7 +31,7 @@ from finefit.session import Session
 from finefit.ui import pictures
 from finefit.ui.commands import COMMANDS
 from finefit.ui.screens import ChoiceScreen, FormScreen, HelpScreen, PickScreen
-from finefit.workspace import Recovery, Workspace
+from finefit.workspace import FileChangedError, Recovery, Workspace
 
 SORTS = ("energy", "|O-C|", "id", "J")
 
@@ -797,11 +797,38 @@ class WorkspaceApp(App):
             return
         try:
             p = self.ws.save()
+        except FileChangedError as exc:
+            self._ask_changed_on_disk(exc.recovery)
+            return
         except (FinefitError, OSError) as exc:
             self.notify(str(exc), title="not saved", severity="error")
             return
         self.message = f"saved {p.name}"
         self.update_status()
+
+    def _ask_changed_on_disk(self, rec: Recovery) -> None:
+        """The file changed since it was read: overwrite it, merge its changes, or cancel."""
+        lines = ["The file was changed on disk since the workspace read it."]
+        if rec.outside:
+            lines += ["", "Changed in the file:"] + [f"  {x}" for x in rec.outside]
+
+        def answer(a: str | None) -> None:
+            try:
+                if a == "b":
+                    self.ws, self.message = rec.keep("both")
+                elif a != "o":
+                    return
+                p = self.ws.save(overwrite=True)
+            except (FinefitError, OSError) as exc:
+                self.notify(str(exc), title="not saved", severity="error")
+                return
+            self.message = f"saved {p.name}" + (" (with the file's changes)" if a == "b" else "")
+            self.refresh_all()
+            self.schedule_fit()
+
+        self.push_screen(ChoiceScreen("\n".join(lines),
+                                      [("b", "merge them, then save"), ("o", "overwrite"),
+                                       ("c", "cancel")]), answer)
 
     def action_keep_set(self) -> None:
         if self._modal_open() or self.result is None:
@@ -924,6 +951,9 @@ class WorkspaceApp(App):
             if a == "s":
                 try:
                     self.ws.save()
+                except FileChangedError as exc:
+                    self._ask_changed_on_disk(exc.recovery)
+                    return
                 except (FinefitError, OSError) as exc:
                     self.notify(str(exc), title="not saved", severity="error")
                     return

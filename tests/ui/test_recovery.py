@@ -119,3 +119,40 @@ def test_workspace_edit_runs_the_save_validation(tmp_path):
         ws.edit("bad bound", sneaky)
     assert ws.session.parameters["2p5 3p: Eav"].max is None  # rolled back
     assert not journal_path(p).exists()  # nothing written
+
+
+def test_save_does_not_overwrite_a_file_changed_on_disk(tmp_path):
+    from finefit.workspace import FileChangedError
+
+    p = tmp_path / "neon.toml"
+    shutil.copy(SAMPLE, p)
+    ws = Workspace(load(p))
+    ws.edit("exclude L009", lambda s: s.update_level("L009", include=False))
+    assert main(["edit", str(p), "L003", "uncertainty=0.05"]) == 0  # meanwhile, outside
+    with pytest.raises(FileChangedError) as err:
+        ws.save()
+    assert "L003" in str(err.value)
+    assert load(p).level("L009").include is True  # not overwritten
+    merged, _ = err.value.recovery.keep("both")
+    merged.save(overwrite=True)
+    s = load(p)
+    assert s.level("L009").include is False and s.level("L003").uncertainty == 0.05
+    merged.edit("include L009", lambda s: s.update_level("L009", include=True))
+    merged.save()  # its own save is the new starting point: no complaint
+
+
+async def test_save_key_asks_when_the_file_changed(tmp_path):
+    p = tmp_path / "neon.toml"
+    shutil.copy(SAMPLE, p)
+    app = make_app(p)
+    async with app.run_test(size=(120, 40)) as pilot:
+        await pilot.pause()
+        app.ws.edit("exclude L009", lambda s: s.update_level("L009", include=False))
+        assert main(["edit", str(p), "L003", "uncertainty=0.05"]) == 0
+        await pilot.press("w")
+        await pilot.pause()
+        assert isinstance(app.screen, ChoiceScreen) and "L003" in app.screen.question
+        await pilot.press("b")
+        await pilot.pause()
+    s = load(p)
+    assert s.level("L009").include is False and s.level("L003").uncertainty == 0.05
