@@ -22,6 +22,7 @@ from finefit.fitting.fit import FitProblem
 from finefit.fitting.results import FitResult
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
 from finefit.fitting.validation import (
+    MAX_MAGNITUDE,
     check_configurations,
     check_ion,
     check_levels,
@@ -491,7 +492,9 @@ class Session:
         ps = ParameterSet(
             name=name, created=datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
             values=dict(result.values),
-            errors={k: v for k, v in result.errors.items()},
+            # an error beyond any physical size says "undetermined", as an infinite one does
+            errors={k: (v if abs(v) <= MAX_MAGNITUDE else math.inf)
+                    for k, v in result.errors.items()},
             sigma=result.sigma, n_levels=result.n_levels, n_free=result.n_free,
             included=list(result.included_ids), converged=result.converged, note=note,
         )
