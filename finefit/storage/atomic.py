@@ -128,6 +128,8 @@ def _fsync_folder(folder: Path) -> None:
 
 def _keep_nature(fd: int, like: os.stat_result | None, new_mode: int) -> None:
     """Give the open temporary file the old file's owner, group and mode."""
+    if not hasattr(os, "fchmod"):  # not on every platform; the default mode stays
+        return
     if like is None:
         os.fchmod(fd, new_mode)
         return
