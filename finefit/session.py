@@ -127,7 +127,7 @@ class Session:
         if isinstance(configurations, str):
             configurations = [configurations]
         check_ion(Z, charge, ionization_limit, name)
-        check_text(title or "", "title")
+        check_text(title or "", "title", max_len=1000, lines=True)
         data = SessionData(
             ion=Ion(Z, charge, ionization_limit, name), configurations=list(configurations),
             parameters={}, levels=[], options=FitOptions(), title=title,

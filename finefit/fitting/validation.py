@@ -327,7 +327,7 @@ def validate_session(ion, configurations: list[str], models: Mapping, parameters
     """
     check_ion(ion.Z, ion.charge, ion.ionization_limit, ion.name)
     check_configurations(configurations, ion.Z, ion.charge)
-    check_text(title or "", "title", max_len=MAX_TITLE)
+    check_text(title or "", "title", max_len=MAX_TITLE, lines=True)
     check_text(note or "", "note", max_len=MAX_NOTE, lines=True)
     check_options(options)
     names = [n for m in models.values() for n in m.parameters]
