@@ -5,7 +5,8 @@ the target's folder (an unnamed one where the system allows it, so that a killed
 process leaves nothing behind), is fsync'ed and renamed over the target. The file
 keeps its nature: a symbolic link is followed and its target written, the mode, owner
 and group of the old file are kept (a new file gets the usual 0666 minus the umask),
-and ``<name>.bak`` is replaced atomically as well, so it is always a complete copy.
+and ``<name>.bak`` is replaced atomically as well, so it is always a complete copy. A
+file without any write permission bit is left alone (a FinefitError says so).
 Temporary files left by a process that was killed are removed by the next save.
 """
 
@@ -265,6 +266,11 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes, backup: bool = True
             like = os.stat(target)
         except FileNotFoundError:
             like = None
+        if like is not None and not like.st_mode & 0o222:
+            # a file nobody may write (chmod a-w) is protected on purpose: renaming over
+            # it would only need write permission on the folder
+            raise FinefitError(f"{quote_path(shown)} is read-only; make it writable "
+                               "(chmod u+w) to save over it", str(shown))
         new_mode = 0o666 & ~_umask()
         tmp = _Temp(folder, _temp_prefix(target.name), data, like, new_mode)
         if backup and like is not None:

@@ -212,3 +212,15 @@ def test_kill_during_saves_leaves_old_or_new_file(tmp_path):
             assert bak.read_text() in (a, b)  # a complete backup
     atomic_write_text(target, a)  # the next save removes what killed saves left
     assert _temps(tmp_path) == []
+
+
+def test_read_only_file_is_not_replaced(tmp_path):
+    p = tmp_path / "archived.toml"
+    p.write_text(SAMPLE.read_text())
+    os.chmod(p, 0o444)
+    s = load(p)
+    s.set_parameter("2p5 3p: Eav", 1.0)
+    with pytest.raises(FinefitError, match="read-only"):
+        s.save()
+    assert p.read_text() == SAMPLE.read_text() and _temps(tmp_path) == []
+    assert not (tmp_path / "archived.toml.bak").exists()
