@@ -156,3 +156,16 @@ async def test_save_key_asks_when_the_file_changed(tmp_path):
         await pilot.pause()
     s = load(p)
     assert s.level("L009").include is False and s.level("L003").uncertainty == 0.05
+
+
+async def test_dismissing_the_dialog_keeps_the_edits_in_a_file(crashed):
+    app = make_app(crashed)
+    async with app.run_test(size=(120, 40)) as pilot:
+        await pilot.pause()
+        assert isinstance(app.screen, ChoiceScreen)
+        await pilot.press("escape")
+        await pilot.pause()
+        assert app.ws.session.level("L003").uncertainty == 0.05  # the file as it is
+    copies = list(crashed.parent.glob("neon.unsaved-*.toml"))
+    assert len(copies) == 1 and load(copies[0]).level("L009").include is False
+    assert not journal_path(crashed).exists()
