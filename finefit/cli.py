@@ -316,7 +316,8 @@ def cmd_edit(args) -> int:
     lv = s.update_level(args.level, **changes)
     s.problem()  # labels, J counts and attachments must still make sense
     _write_session(s)
-    _console(args).print(f"level {lv.id}: " + ", ".join(f"{k} = {v!r}" for k, v in changes.items()))
+    _console(args).print(f"level {lv.id}: "
+                         + ", ".join(f"{k} = {quote(v)}" for k, v in changes.items()))
     return EXIT_OK
 
 
@@ -441,14 +442,14 @@ def cmd_sets(args) -> int:
     if action == "use":
         s.use_set(args.names[0])
         _write_session(s)
-        con.print(f"values of set {args.names[0]!r} are now the session's starting values")
+        con.print(f"values of set {quote(args.names[0])} are now the session's starting values")
         return EXIT_OK
     if action == "remove":
         s.remove_set(args.names[0])
         _write_session(s)
-        con.print(f"removed set {args.names[0]!r}")
+        con.print(f"removed set {quote(args.names[0])}")
         return EXIT_OK
-    raise FinefitError(f"unknown sets action {action!r}", action)
+    raise FinefitError(f"unknown sets action {quote(action)}", action)
 
 
 def cmd_abinitio(args) -> int:

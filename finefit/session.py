@@ -96,7 +96,7 @@ class Session:
         for name in data.parameters:
             if name not in known:
                 raise FinefitError(
-                    f"parameter {name!r} does not exist for configurations "
+                    f"parameter {quote(name)} does not exist for configurations "
                     f"{', '.join(self.configurations)}",
                     name,
                 )
@@ -240,7 +240,7 @@ class Session:
             c = str(parse_configuration(lv.configuration))
             if c not in model.configurations:
                 raise FinefitError(
-                    f"level {lv.id}: configuration {lv.configuration!r} is not in the session",
+                    f"level {lv.id}: configuration {quote(lv.configuration)} is not in the session",
                     lv.id,
                 )
             lv.configuration = c
@@ -269,7 +269,7 @@ class Session:
     ) -> str:
         """Add an observed level; returns its id."""
         if parity not in ("even", "odd"):
-            raise FinefitError(f"parity must be 'even' or 'odd', got {parity!r}", "parity")
+            raise FinefitError(f"parity must be 'even' or 'odd', got {quote(parity)}", "parity")
         e = _number(energy, "energy")
         if uncertainty is not None:
             uncertainty = check_number(uncertainty, "uncertainty", positive=True)
@@ -299,7 +299,7 @@ class Session:
                    "g", "note", "state"}
         bad = set(changes) - allowed
         if bad:
-            raise FinefitError(f"unknown level field {sorted(bad)[0]!r}", sorted(bad)[0])
+            raise FinefitError(f"unknown level field {quote(sorted(bad)[0])}", sorted(bad)[0])
         if "J" in changes:
             changes["J"] = parse_j(changes["J"])
         if "energy" in changes:
