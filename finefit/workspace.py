@@ -222,6 +222,7 @@ class Workspace:
         # the file's text the edits start from (recorded beside the journal)
         self.base_text: str | None = session.source_text
         self._base_written = False
+        self.journal_error: str | None = None
 
     # ------------------------------------------------------------------ journal
     @property
@@ -307,11 +308,18 @@ class Workspace:
         return journal_base_path(self.session.path) if self.session.path else None
 
     def _write_journal(self) -> None:
+        """Write the journal; a failure (disk full, say) does not undo the edit, which is
+        valid, but is kept in ``journal_error`` for the front end to show."""
         if self.use_journal and self.journal is not None:
-            if not self._base_written:  # first the state the edits start from
-                atomic_write_text(self._base_path, self.base_text or "", backup=False)
-                self._base_written = True
-            atomic_write_text(self.journal, self.session.to_toml(), backup=False)
+            try:
+                if not self._base_written:  # first the state the edits start from
+                    atomic_write_text(self._base_path, self.base_text or "", backup=False)
+                    self._base_written = True
+                atomic_write_text(self.journal, self.session.to_toml(), backup=False)
+            except FinefitError as exc:
+                self.journal_error = f"the autosave journal could not be written: {exc}"
+            else:
+                self.journal_error = None
 
     # ------------------------------------------------------------------ edits
     def _snapshot(self, description: str) -> Snapshot:

@@ -590,6 +590,8 @@ class WorkspaceApp(App):
             self.update_status()
             return False
         self.message = description
+        if self.ws.journal_error:
+            self.notify(self.ws.journal_error, title="not autosaved", severity="warning")
         # the tables are redrawn once, when the new fit lands (redrawing a large table
         # costs as much as the fit itself); if the session cannot be fitted, redraw now
         self.schedule_fit()

@@ -169,3 +169,19 @@ async def test_dismissing_the_dialog_keeps_the_edits_in_a_file(crashed):
     copies = list(crashed.parent.glob("neon.unsaved-*.toml"))
     assert len(copies) == 1 and load(copies[0]).level("L009").include is False
     assert not journal_path(crashed).exists()
+
+
+def test_journal_failure_keeps_the_edit_and_says_so(tmp_path, monkeypatch):
+    import finefit.workspace as wsmod
+
+    p = tmp_path / "neon.toml"
+    shutil.copy(SAMPLE, p)
+    ws = Workspace(load(p))
+
+    def disk_full(*a, **k):
+        raise FinefitError("cannot write: No space left on device", "journal")
+
+    monkeypatch.setattr(wsmod, "atomic_write_text", disk_full)
+    ws.edit("exclude L009", lambda s: s.update_level("L009", include=False))
+    assert ws.session.level("L009").include is False and ws.dirty
+    assert "No space left" in ws.journal_error
