@@ -371,12 +371,13 @@ def cmd_import(args) -> int:
 
 
 def cmd_export(args) -> int:
-    from finefit.storage.level_tables import detect_format, format_levels
+    from finefit.storage.level_tables import format_levels
 
     s = _load(args.session)
     guard = _guard(args)
     guard.check([args.output])
-    fmt = args.format or detect_format(args.output, "")
+    fmt = args.format or {".csv": "csv", ".tsv": "tsv"}.get(Path(args.output).suffix.lower(),
+                                                           "txt")
     p = guard.write(args.output, format_levels(s.levels, fmt))
     _console(args).print(f"wrote {len(s.levels)} levels to {p}")
     return EXIT_OK
