@@ -492,6 +492,20 @@ class FitProblem:
                         new = idx.copy()
                         new[a], new[c] = idx[c], idx[a]
                         out.append((d, (ids[a], ids[c]), {key: new}))
+            # short cycles: three levels neighbouring in calculated energy pass their
+            # states round (both directions)
+            order = sorted(range(len(ids)), key=lambda k: energies[idx[k]])
+            for t in range(len(order) - 2):
+                a, b, c = order[t], order[t + 1], order[t + 2]
+                if rows[a] is None and rows[b] is None and rows[c] is None:
+                    continue
+                for perm in ((b, c, a), (c, a, b)):
+                    d = sum(part(rows[x], energies[idx[y]]) - now[x]
+                            for x, y in zip((a, b, c), perm, strict=True))
+                    if d < 0:
+                        new = idx.copy()
+                        new[a], new[b], new[c] = idx[perm[0]], idx[perm[1]], idx[perm[2]]
+                        out.append((d, (ids[a], ids[b], ids[c]), {key: new}))
             free = sorted(set(range(energies.size)) - set(int(i) for i in idx))
             for a in range(len(ids)):
                 if rows[a] is None:
@@ -590,13 +604,20 @@ class FitProblem:
                     if bad:
                         sigma_after = self._sigma_of(v_new)
                         self._restore(base)
-                        self.suspected.append((*who, sigma_after) if len(who) == 2
-                                              else (who[0], "", sigma_after))
+                        if len(who) == 2:
+                            self.suspected.append((*who, sigma_after))
+                        elif len(who) == 1:
+                            self.suspected.append((who[0], "", sigma_after))
+                        else:  # a cycle: proposed as the exchanges it is made of
+                            self.suspected.append((who[0], who[1], sigma_after))
+                            self.suspected.append((who[1], who[2], sigma_after))
                         proposed.add(who)
                         continue
                     self.warnings.append(
                         ("exchanged the states of levels " + " and ".join(who))
-                        if len(who) == 2 else f"moved level {who[0]} to another state"
+                        if len(who) == 2
+                        else f"moved level {who[0]} to another state" if len(who) == 1
+                        else "passed the states of levels " + ", ".join(who) + " round"
                     )
                     self.warnings[-1] += (
                         f": chi-square {chi2:.6g} -> {chi2_new:.6g} after a refit"
