@@ -156,14 +156,35 @@ def fit_member_task(session_toml: str) -> dict:
             s.fill_ab_initio(set_values=False)
         r = s.fit()
         cov = parameter_covariance(r, s.parameters)
+        names = list(r.values)
+        values = np.array([r.values[n] for n in names])
+        # E_av measured from the member's lowest computed level (the compilations' origin
+        # differs between ions); its covariance through the Hellmann-Feynman gradient g0
+        # of that level: y = E_av - E_0, T = I - e_Eav g0^T
+        lowest = min(((p, lev) for p, sol in r.solutions.items() for lev in sol.levels),
+                     key=lambda t: t[1].energy)
+        g0 = np.zeros(len(names))
+        model_names = s.models[lowest[0]].parameters
+        for j, gj in enumerate(r.solutions[lowest[0]].gradient(lowest[1])):
+            g0[names.index(model_names[j])] = gj
+        T = np.eye(len(names))
+        for i, n in enumerate(names):
+            if kinds[n] == "Eav":
+                T[i] -= g0
+                values[i] -= lowest[1].energy
+        cov = T @ cov @ T.T
+        err = [_num(r.errors[n]) for n in names]
+        for i, n in enumerate(names):
+            if kinds[n] == "Eav" and err[i] is not None and err[i] > 0:
+                err[i] = float(np.sqrt(max(cov[i, i], 0.0)))
         return {
             "Z": s.ion.Z, "charge": s.ion.charge, "name": s.ion.name,
             "configurations": list(s.configurations),
             "converged": bool(r.converged), "sigma": _num(r.sigma),
             "n_levels": r.n_levels, "n_free": r.n_free,
-            "names": list(r.values),
-            "values": [float(v) for v in r.values.values()],
-            "errors": [_num(r.errors[n]) for n in r.values],
+            "names": names,
+            "values": [float(v) for v in values],
+            "errors": err,
             "status": [r.status[n] for n in r.values],
             "kinds": [kinds[n] for n in r.values],
             "ab_initio": [_num(s.parameters[n].ab_initio) if s.parameters[n].ab_initio
