@@ -63,6 +63,7 @@ def run_tasks(
     cluster = None
     try:
         if scheduler:
+            _reachable(scheduler)
             try:
                 client = Client(scheduler, timeout="10s")
             except (OSError, TimeoutError, ValueError) as exc:
@@ -93,6 +94,22 @@ def run_tasks(
     finally:
         if cluster is not None:
             cluster.close()
+
+
+def _reachable(address: str) -> None:
+    """Fail fast with a clear message when nothing listens at a tcp:// address (the
+    client itself would retry until its timeout)."""
+    import socket
+    from urllib.parse import urlsplit
+
+    parts = urlsplit(address if "://" in address else "tcp://" + address)
+    if parts.scheme not in ("tcp", "tls") or not parts.hostname or not parts.port:
+        return  # other transports: let the client decide
+    try:
+        socket.create_connection((parts.hostname, parts.port), timeout=5).close()
+    except OSError as exc:
+        raise FinefitError(f"cannot reach the dask scheduler at {address!r}: {exc}",
+                           "scheduler") from None
 
 
 def chunks(n: int, parts: int) -> list[range]:

@@ -51,7 +51,7 @@ def trend_table(analysis) -> Table:
             if r["status"] == "fixed":
                 cell += " (fixed)"
             if r["ratio"] is not None:
-                cell += f"\n{pm(r['ratio'], r['ratio_error'], 3)}"
+                cell += f"\n{pm(r['ratio'], r['ratio_error'], 4)}"
             cells.append(cell)
         law = analysis.laws.get(n)
         if law is None:
@@ -171,6 +171,7 @@ def sequence_figure(analysis, path: str | Path, new=None) -> Path:
         else:
             bottom.text(0.5, 0.5, "no ratio\n(no ab initio value)", ha="center", va="center",
                         fontsize=7, transform=bottom.transAxes)
+            bottom.set_yticks([])
         bottom.set_xlabel("Z", fontsize=8)
         bottom.tick_params(labelsize=7)
     axes[0, 0].set_ylabel("cm$^{-1}$", fontsize=8)
