@@ -122,6 +122,8 @@ def cmd_resample(args) -> int:
     if fig:
         for ext in fig[1]:
             written.append(str(rep.histogram_figure(res, fig[0] / f"{args.method}.{ext}")))
+            written.append(str(rep.level_spread_figure(
+                res, fig[0] / f"{args.method}_levels.{ext}")))
     if args.json:
         out = res.to_dict()
         out["figures"] = written

@@ -202,12 +202,35 @@ def histogram_figure(res, path: str | Path) -> Path:
                 ax.plot(x, area * np.exp(-0.5 * ((x - s.value) / ce) ** 2)
                         / (ce * math.sqrt(2 * math.pi)), color="k", lw=0.8)
         ax.axvline(s.value, color="tab:red", lw=0.8)
+        ax.ticklabel_format(axis="x", useOffset=False)
         ax.set_title(s.name + ("  (differs)" if s.flagged else ""), fontsize=7,
                      color="tab:red" if s.flagged else "black")
         ax.tick_params(labelsize=6)
     for k in range(len(spreads), nrows * cols):
         axes[k // cols, k % cols].axis("off")
     fig.suptitle(f"{res.method}: {res.n_ok} refits; curve: covariance error", fontsize=8)
+    fig.tight_layout()
+    return _save(fig, plt, path)
+
+
+def level_spread_figure(res, path: str | Path) -> Path:
+    """Per computed level: the refit spread and the propagated covariance error against
+    the level's energy; flagged levels marked."""
+    plt = _pyplot()
+    fig, ax = plt.subplots(figsize=(7, 3.5))
+    e = np.array([s.value for s in res.levels])
+    sp = np.array([s.spread for s in res.levels])
+    ce = np.array([s.covariance_error if math.isfinite(s.covariance_error) else np.nan
+                   for s in res.levels])
+    flag = np.array([s.flagged for s in res.levels], dtype=bool)
+    ax.plot(e, ce, "o", mfc="white", color="k", ms=4, label="covariance error")
+    ax.plot(e, sp, ".", color="tab:blue", ms=6, label="refit spread")
+    if flag.any():
+        ax.plot(e[flag], sp[flag], "x", color="tab:red", ms=8, label="differ > 1.5x")
+    ax.set_xlabel("calculated energy (cm$^{-1}$)")
+    ax.set_ylabel("standard uncertainty (cm$^{-1}$)")
+    ax.set_title(f"{res.method}: {res.n_ok} refits", fontsize=8)
+    ax.legend(frameon=False, fontsize=7)
     fig.tight_layout()
     return _save(fig, plt, path)
 

@@ -62,7 +62,9 @@ def test_resample_command_json_and_figures(tmp_path, capsys):
     assert out["method"] == "montecarlo" and out["successful"] == 12
     names = [x["name"] for x in out["parameters"]]
     assert "3d3: F2(3d)" in names and len(out["levels"]) == 19
-    assert (tmp_path / "montecarlo.png").exists() and (tmp_path / "montecarlo.pdf").exists()
+    for name in ("montecarlo.png", "montecarlo.pdf", "montecarlo_levels.png",
+                 "montecarlo_levels.pdf"):
+        assert (tmp_path / name).stat().st_size > 1000, name
     assert p.read_text() == before  # the session file is not changed
     assert main(["resample", str(p), "--runs", "8", "--method", "bootstrap", "--serial"]) == 0
     assert "bootstrap" in capsys.readouterr().out
