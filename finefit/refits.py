@@ -150,6 +150,9 @@ def summarise_refits(
             lerr.append(p.uncertainty)
     lsp = summarise(lnames, lvals, en, lerr)
     warnings = []
+    if not r0.converged:
+        warnings.append("the fit to the data did not converge: the refits start from an "
+                        "unconverged point")
     if failures:
         warnings.append(f"{len(failures)} of {runs} refits failed or left a parameter "
                         "undetermined; they are left out of the statistics")

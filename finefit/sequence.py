@@ -78,12 +78,21 @@ class SequenceAnalysis:
         for k, (n, law) in enumerate(zip(names, laws, strict=True)):
             y, _ = law(float(Z))
             if law.kind == "ratio" and ab_initio is not None:
+                if not ab_initio.get(n):
+                    raise FinefitError(f"{n}: no Hartree-Fock value for Z = {Z} to scale the "
+                                       "ratio law with", n)
                 factor[k] = ab_initio[n]
             values[n] = y * factor[k]
         cov = cov * np.outer(factor, factor)
         for n, v in self.fixed.items():
-            values[n] = v * (ab_initio[n] if ab_initio and self.kinds[n] in RATIO_KINDS
-                             and n in ab_initio and self._fixed_is_ratio(n) else 1.0)
+            if self.kinds[n] in RATIO_KINDS and self._fixed_is_ratio(n):
+                if ab_initio and ab_initio.get(n):
+                    values[n] = v * ab_initio[n]
+                else:  # no Hartree-Fock value to scale with: the members' mean value
+                    values[n] = float(np.mean([m["values"][m["names"].index(n)]
+                                               for m in self.members]))
+            else:
+                values[n] = v
         errors = {n: float(math.sqrt(max(cov[k, k], 0.0))) for k, n in enumerate(names)}
         errors.update({n: 0.0 for n in self.fixed})
         return values, errors, (names, cov)

@@ -200,3 +200,18 @@ def test_next_member_cr_v_is_predicted_with_uncertainties(real_3d2, capsys):
     for p in r.predictions:
         if p is not low:
             assert 0 < p.uncertainty < 0.02 * p.energy + 300.0
+
+
+def test_parameters_fixed_in_every_member_stay_fixed():
+    members = []
+    for Z in (21, 22, 23):
+        s, _ = synthetic_member(Z, Z)
+        s.set_parameter("3d2: alpha(3d)", 55.0 + Z, vary=False)
+        members.append(s)
+    analysis = fit_sequence(members)
+    assert "3d2: alpha(3d)" not in analysis.laws
+    assert analysis.fixed["3d2: alpha(3d)"] == pytest.approx(77.0)  # mean of 76, 77, 78
+    new = new_member(analysis, 24, 4)
+    assert new.parameters["3d2: alpha(3d)"].value == pytest.approx(77.0)
+    assert not new.parameters["3d2: alpha(3d)"].vary
+    assert new.parameter_set("sequence trends").errors["3d2: alpha(3d)"] == 0.0
