@@ -80,6 +80,10 @@ def main() -> int:
           f"{t_warm / ref:.2f} (target <= 0.65)")
     print(f"start-up + first request:       {t_start + t_cold:7.2f} s  ratio "
           f"{(t_start + t_cold) / ref:.2f}")
+    print(f"CPU seconds in the refits: serial {serial.cpu_seconds:.2f}, dask cold "
+          f"{cold.cpu_seconds:.2f}, warm {warm.cpu_seconds:.2f} (wall / (CPU / 2) shows how "
+          "much of two cores the workers got)")
+    print(f"dask warm: wall {t_warm:.2f} s for {warm.cpu_seconds / 2:.2f} s of CPU per worker")
     print(f"identical numbers (serial, dask cold, dask warm): {same}")
     print("(shared machine: other work was running; single measurements; ratios against "
           "the faster serial run)")

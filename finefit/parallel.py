@@ -14,6 +14,7 @@ from __future__ import annotations
 import logging
 import math
 import os
+import time
 from collections.abc import Callable, Sequence
 from dataclasses import replace
 
@@ -243,10 +244,12 @@ def refit_task(session_toml: str, level_ids: list[str], draws: list[dict]) -> li
                     u = (lv.uncertainty or s.options.default_uncertainty) if weighted else 1.0
                     s.levels[i] = (replace(lv, include=False) if c == 0
                                    else replace(lv, uncertainty=u / math.sqrt(c)))
+            cpu = time.process_time()
             try:
                 r = s.fit()
             except FinefitError as exc:
-                out.append({"ok": False, "message": str(exc)})
+                out.append({"ok": False, "message": str(exc),
+                            "cpu_seconds": time.process_time() - cpu})
                 continue
             undetermined = [n for n, st in r.status.items() if st == "undetermined"]
             energies = {(p, lev.block, lev.position): lev.energy
@@ -258,5 +261,6 @@ def refit_task(session_toml: str, level_ids: list[str], draws: list[dict]) -> li
                 "sigma": _num(r.sigma),
                 "values": [float(v) for v in r.values.values()],
                 "energies": [float(energies.get(k, math.nan)) for k in keys],
+                "cpu_seconds": time.process_time() - cpu,  # of this refit, for benchmarks
             })
     return out

@@ -50,6 +50,7 @@ class ResamplingResult:
     level_samples: np.ndarray  # (n_ok, levels)
     perturbation: str = ""
     warnings: list[str] = field(default_factory=list)
+    cpu_seconds: float = 0.0  # CPU time of all refits, wherever they ran
 
     @property
     def flagged(self) -> list[str]:
@@ -167,5 +168,6 @@ def summarise_refits(
         how += f"; covariance errors: {r0.covariance_note}"
     if not math.isfinite(r0.chi2):
         warnings.append("the fit to the data has no finite chi-square")
+    cpu = float(sum(x.get("cpu_seconds", 0.0) for x in results))
     return ResamplingResult(method, runs, seed, len(ok), failures, r0, psp, lsp, vals[:, varied],
-                            en, how, warnings)
+                            en, how, warnings, cpu)
