@@ -53,10 +53,10 @@ def cmd_sequence(args) -> int:
     from finefit.reports.tables import print_table
     from finefit.sequence import fit_sequence, new_member
 
-    if (args.Z is None) != (args.charge is None):
-        raise FinefitError("give both --Z and --charge for the new member", "--Z")
+    if args.charge is not None and args.Z is None:
+        raise FinefitError("--charge needs --Z of the new member", "--charge")
     if args.write and args.Z is None:
-        raise FinefitError("--write needs --Z and --charge of the new member", "--write")
+        raise FinefitError("--write needs --Z of the new member", "--write")
     if args.degree < 0:
         raise FinefitError("--degree must be 0 or more", "--degree")
     if args.write and Path(args.write).exists() and not args.force:
@@ -65,12 +65,23 @@ def cmd_sequence(args) -> int:
     sessions = [_load(p) for p in args.sessions]
     with _progress(args, "fitting the members") as update:
         analysis = fit_sequence(sessions, args.degree, _where(args), args.workers, update)
+    ref = analysis.members[0]
+    electrons = ref["Z"] - ref["charge"]
     new = r = None
     if args.Z is not None:
-        new = new_member(analysis, args.Z, args.charge, name=args.name or "")
+        charge = args.Z - electrons if args.charge is None else args.charge
+        new = new_member(analysis, args.Z, charge, name=args.name or "")
         r = new.report()
         if args.write:
             new.save(args.write)
+    at = []  # values of the laws at other Z (each with its Hartree-Fock run)
+    for z in args.at or []:
+        if z - electrons < 0:
+            raise FinefitError(f"--at {z}: fewer protons than the sequence's {electrons} "
+                               "electrons", "--at")
+        other = new_member(analysis, z, z - electrons)
+        ps = next(x for x in other.parameter_sets if x.name == "sequence trends")
+        at.append((z, {n: (p.value, ps.errors.get(n)) for n, p in other.parameters.items()}))
     written = []
     fig = _figures(args)
     if fig:
@@ -87,6 +98,9 @@ def cmd_sequence(args) -> int:
                                for n, p in new.parameters.items()],
                 "levels": r.to_dict()["predictions"],
             }
+        out["at"] = [{"Z": z, "charge": z - electrons,
+                      "parameters": [{"name": n, "value": v, "uncertainty": u}
+                                     for n, (v, u) in vals.items()]} for z, vals in at]
         out["figures"] = written
         out["session_written"] = args.write
         _json(out)
@@ -94,6 +108,8 @@ def cmd_sequence(args) -> int:
     con = _console(args)
     con.print(rep.member_table(analysis))
     con.print(rep.trend_table(analysis))
+    if at:
+        con.print(rep.values_at_table(at))
     if new is not None:
         con.print(rep.prediction_table(new))
         print_table(con, rep.predicted_levels_table(r))
@@ -166,7 +182,10 @@ def register(sub) -> None:
     sp.add_argument("sessions", nargs="+", help="session files of one sequence (same "
                     "configurations, different Z)")
     sp.add_argument("--Z", type=int, help="nuclear charge of the member to predict")
-    sp.add_argument("--charge", type=int, help="its ion charge")
+    sp.add_argument("--charge", type=int, help="its ion charge (default: from the "
+                    "sequence's number of electrons)")
+    sp.add_argument("--at", type=int, nargs="+", metavar="Z",
+                    help="also give the parameters interpolated or extrapolated to these Z")
     sp.add_argument("--name", help="its name for reports, e.g. 'Cr V'")
     sp.add_argument("--degree", type=int, default=1,
                     help="degree of the polynomial law in Z (default 1; lowered when fewer "

@@ -79,6 +79,18 @@ def prediction_table(new) -> Table:
     return tab
 
 
+def values_at_table(at) -> Table:
+    """Parameters from the laws at several Z: [(Z, {name: (value, uncertainty)})]."""
+    tab = Table(title="Parameters from the trends (cm-1; E_av relative to the ground level)",
+                title_justify="left")
+    tab.add_column("parameter")
+    for z, _ in at:
+        tab.add_column(f"Z = {z}", justify="right")
+    for n in at[0][1]:
+        tab.add_row(Text(n), *[pm(*vals[n]) for _, vals in at])
+    return tab
+
+
 def predicted_levels_table(r) -> Table:
     tab = Table(title="Predicted levels (relative to the predicted ground level; uncertainty "
                 "from the trends)", title_justify="left")

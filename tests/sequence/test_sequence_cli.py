@@ -32,10 +32,20 @@ def test_sequence_command_predicts_and_writes(tmp_path, capsys):
         assert (tmp_path / "figs" / f"sequence.{ext}").stat().st_size > 1000
     new = finefit.load(out_file)
     assert new.ion.Z == 26 and new.parameter_set("sequence trends").errors["3d3: F2(3d)"] > 0
-    # the table form prints the members, the trends and the predicted levels
-    assert main(["sequence", *map(str, OSPREY), "--serial"]) == 0
+    # the table form prints the members, the trends, values at other Z (interpolated at
+    # 24.0 it must give back the middle member's own value within its uncertainty) and the
+    # predicted levels; the charge follows from the sequence's 21 electrons
+    assert main(["sequence", *map(str, OSPREY), "--serial", "--Z", "27", "--at", "24",
+                 "28", "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["prediction"]["charge"] == 6 and [x["Z"] for x in out["at"]] == [24, 28]
+    f2_24 = next(p for p in out["at"][0]["parameters"] if p["name"] == "3d3: F2(3d)")
+    mid = next(x for x in out["parameters"] if x["parameter"] == "3d3: F2(3d)"
+               and x["Z"] == 24)
+    assert abs(f2_24["value"] - mid["value"]) < 3 * f2_24["uncertainty"]
+    assert main(["sequence", *map(str, OSPREY), "--serial", "--at", "26"]) == 0
     text = capsys.readouterr().out
-    assert "Z = 25" in text and "ratio to HF" in text
+    assert "Z = 25" in text and "ratio to HF" in text and "from the trends" in text
 
 
 def test_sequence_command_bad_input(tmp_path, capsys):
@@ -44,8 +54,8 @@ def test_sequence_command_bad_input(tmp_path, capsys):
     capsys.readouterr()
     assert main(["sequence", str(OSPREY[0]), str(other), "--serial"]) == 2
     assert "isoelectronic" in capsys.readouterr().err
-    assert main(["sequence", *map(str, OSPREY), "--Z", "26", "--serial"]) == 2
-    assert "--charge" in capsys.readouterr().err
+    assert main(["sequence", *map(str, OSPREY), "--charge", "5", "--serial"]) == 2
+    assert "--Z" in capsys.readouterr().err
     assert main(["sequence", *map(str, OSPREY), "--Z", "26", "--charge", "4",
                  "--serial"]) == 2
     assert "electrons" in capsys.readouterr().err
