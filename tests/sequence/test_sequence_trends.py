@@ -215,3 +215,35 @@ def test_parameters_fixed_in_every_member_stay_fixed():
     assert new.parameters["3d2: alpha(3d)"].value == pytest.approx(77.0)
     assert not new.parameters["3d2: alpha(3d)"].vary
     assert new.parameter_set("sequence trends").errors["3d2: alpha(3d)"] == 0.0
+
+
+def test_linked_parameters_are_fully_correlated_in_the_member_covariance():
+    from finefit.parallel import parameter_covariance
+
+    s, vals = synthetic_member(22, 7)
+    s.set_parameter("3d2: F2(3d)", link="Fk")
+    s.set_parameter("3d2: F4(3d)", link="Fk")
+    r = s.fit()
+    cov = parameter_covariance(r, s.parameters)
+    names = list(r.values)
+    i, j = names.index("3d2: F2(3d)"), names.index("3d2: F4(3d)")
+    e2, e4 = r.errors["3d2: F2(3d)"], r.errors["3d2: F4(3d)"]
+    assert e2 > 0 and e4 > 0
+    assert cov[i, i] == pytest.approx(e2**2) and cov[j, j] == pytest.approx(e4**2)
+    assert cov[i, j] == pytest.approx(e2 * e4)  # x_F4 = ratio * x_F2: correlation 1
+    k = names.index("3d2: zeta(3d)")
+    assert cov[k, k] == pytest.approx(r.errors["3d2: zeta(3d)"] ** 2)
+
+
+def test_members_without_ab_initio_values_get_hartree_fock_ones():
+    members = []
+    for Z in (22, 23):
+        s, _ = synthetic_member(Z, Z)
+        for n in s.parameters:
+            s.set_parameter(n, ab_initio=None)
+        members.append(s)
+    analysis = fit_sequence(members)
+    assert analysis.laws["3d2: F2(3d)"].kind == "ratio"
+    hf = finefit.hartree_fock("3d2", Z=23, charge=3).parameters("3d2")
+    m = analysis.members[1]
+    assert m["ab_initio"][m["names"].index("3d2: F2(3d)")] == pytest.approx(hf["3d2: F2(3d)"])
