@@ -32,6 +32,95 @@ def default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
+class TaskRunner:
+    """Runs a task function over payloads: in this process (``serial``), on an existing
+    dask scheduler (``scheduler`` address), or on a LocalCluster started on entry and
+    closed on exit (``workers`` processes, default the cores, one thread each).
+
+    ``warm(fn, *args)`` sends ``fn`` to every worker without waiting, so that the
+    workers import the engine and build its matrices while the caller does other work
+    (its results are dropped). ``map`` returns results in submission order.
+    """
+
+    def __init__(self, serial: bool = False, scheduler: str | None = None,
+                 workers: int | None = None) -> None:
+        self.serial = serial
+        self.scheduler = scheduler
+        self.workers = workers
+        self.client = None
+        self.cluster = None
+        self._warming: list = []
+
+    def __enter__(self) -> TaskRunner:
+        if self.serial:
+            return self
+        try:
+            from distributed import Client, LocalCluster
+        except ImportError as exc:  # pragma: no cover - a declared dependency
+            raise FinefitError(f"dask.distributed is not installed ({exc})",
+                               "distributed") from None
+        if self.scheduler:
+            _reachable(self.scheduler)
+            try:
+                self.client = Client(self.scheduler, timeout="10s")
+            except (OSError, TimeoutError, ValueError) as exc:
+                raise FinefitError(f"cannot reach the dask scheduler at {self.scheduler!r}: "
+                                   f"{exc}", "scheduler") from None
+            return self
+        n = self.workers or default_workers()
+        if n < 1:
+            raise FinefitError("the number of workers must be at least 1", "workers")
+        self.cluster = LocalCluster(
+            n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
+            silence_logs=logging.ERROR,
+            # one BLAS thread per worker process (the tasks also cap it themselves)
+            env={"OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1",
+                 "MKL_NUM_THREADS": "1", "FINEFIT_BLAS_THREADS": "1"},
+        )
+        try:
+            self.client = Client(self.cluster)
+        except Exception:
+            self.cluster.close()
+            raise
+        return self
+
+    def __exit__(self, *exc) -> None:
+        if self.client is not None:
+            self.client.close()
+        if self.cluster is not None:
+            self.cluster.close()
+
+    def warm(self, fn: Callable, *args) -> None:
+        if self.client is None:
+            return
+        for w in self.client.scheduler_info()["workers"]:
+            self._warming.append(self.client.submit(fn, *args, workers=[w], pure=False,
+                                                    allow_other_workers=False))
+
+    def map(self, fn: Callable, payloads: Sequence[tuple],
+            progress: Callable[[int, int], None] | None = None) -> list:
+        total = len(payloads)
+        if self.client is None:
+            out = []
+            with engine_threads():
+                for k, p in enumerate(payloads):
+                    out.append(fn(*p))
+                    if progress:
+                        progress(k + 1, total)
+            return out
+        from distributed import as_completed
+
+        futures = [self.client.submit(fn, *p, pure=False) for p in payloads]
+        done = 0
+        for _ in as_completed(futures):
+            done += 1
+            if progress:
+                progress(done, total)
+        out = self.client.gather(futures)
+        self._warming.clear()  # warm-up results are not needed
+        return out
+
+
 def run_tasks(
     fn: Callable,
     payloads: Sequence[tuple],
@@ -48,53 +137,8 @@ def run_tasks(
     thread each is started for this call and closed afterwards. ``progress(done, total)``
     is called as tasks finish.
     """
-    total = len(payloads)
-    if serial:
-        out = []
-        with engine_threads():
-            for k, p in enumerate(payloads):
-                out.append(fn(*p))
-                if progress:
-                    progress(k + 1, total)
-        return out
-    try:
-        from distributed import Client, LocalCluster, as_completed
-    except ImportError as exc:  # pragma: no cover - a declared dependency
-        raise FinefitError(f"dask.distributed is not installed ({exc})", "distributed") from None
-    cluster = None
-    try:
-        if scheduler:
-            _reachable(scheduler)
-            try:
-                client = Client(scheduler, timeout="10s")
-            except (OSError, TimeoutError, ValueError) as exc:
-                raise FinefitError(f"cannot reach the dask scheduler at {scheduler!r}: {exc}",
-                                   "scheduler") from None
-        else:
-            n = workers or default_workers()
-            if n < 1:
-                raise FinefitError("the number of workers must be at least 1", "workers")
-            cluster = LocalCluster(
-                n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
-                silence_logs=logging.ERROR,
-                # one BLAS thread per worker process (the tasks also cap it themselves)
-                env={"OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1",
-                     "MKL_NUM_THREADS": "1", "FINEFIT_BLAS_THREADS": "1"},
-            )
-            client = Client(cluster)
-        try:
-            futures = [client.submit(fn, *p, pure=False) for p in payloads]
-            done = 0
-            for _ in as_completed(futures):
-                done += 1
-                if progress:
-                    progress(done, total)
-            return client.gather(futures)
-        finally:
-            client.close()
-    finally:
-        if cluster is not None:
-            cluster.close()
+    with TaskRunner(serial, scheduler, workers) as runner:
+        return runner.map(fn, payloads, progress)
 
 
 def _reachable(address: str) -> None:
@@ -210,6 +254,17 @@ def fit_member_task(session_toml: str) -> dict:
             "covariance": cov.tolist(),
             "warnings": list(r.warnings),
         }
+
+
+def warm_task(session_toml: str) -> bool:
+    """Read a session and report it: imports the engine and builds (and caches) its
+    matrices and coupling data in this worker before the real tasks arrive."""
+    from finefit.session import Session
+    from finefit.storage.session_file import parse_session
+
+    with engine_threads():
+        Session(parse_session(session_toml)).report()
+    return True
 
 
 def state_keys(solutions) -> list[tuple[str, int, int]]:

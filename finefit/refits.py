@@ -28,7 +28,7 @@ from finefit.fitting.resampling import (
 )
 from finefit.fitting.results import FitResult
 from finefit.notation.jvalues import format_j
-from finefit.parallel import chunks, default_workers, refit_task, run_tasks, state_keys
+from finefit.parallel import TaskRunner, chunks, refit_task, state_keys, warm_task
 from finefit.session import Session
 
 METHODS = ("montecarlo", "bootstrap")
@@ -84,38 +84,38 @@ def resample(
         raise FinefitError(f"method {method!r}: use one of {', '.join(METHODS)}", "method")
     if not isinstance(runs, int) or runs < 2:
         raise FinefitError("at least 2 refits are needed for a spread", "runs")
-    r0 = session.fit()
-    base = session.copy()
-    base.apply(r0)
-    text = base.to_toml()
-    included = [lv for lv in base.levels if lv.include]
-    ids = [lv.id for lv in included]
-    sigma = r0.sigma if r0.sigma else session.options.default_uncertainty
-    if method == "montecarlo":
-        u = np.array([lv.uncertainty if lv.uncertainty else sigma for lv in included])
-        e = monte_carlo_draws([lv.energy for lv in included], u, runs, seed)
-        draws = [{"energies": row.tolist()} for row in e]
-        given = sum(1 for lv in included if lv.uncertainty)
-        how = (f"energies perturbed by N(0, u): {given} levels with their uncertainty, "
-               f"{len(included) - given} with the fit's sigma = {sigma:.4g} cm-1")
-    else:
-        c = bootstrap_counts(len(included), runs, seed)
-        draws = [{"counts": row.tolist()} for row in c]
-        how = f"{len(included)} levels resampled with replacement (weights = multiplicity)"
     serial = scheduler is None
-    n_workers = 1 if serial else (workers or default_workers())
-    parts = chunks(runs, 1 if serial else 4 * n_workers)
-    payloads = [(text, ids, [draws[i] for i in part]) for part in parts]
-    done = [0]
+    with TaskRunner(serial, None if scheduler in (None, "local") else scheduler,
+                    workers) as runner:
+        # the workers set up the engine while this process fits the data themselves
+        runner.warm(warm_task, session.to_toml())
+        r0 = session.fit()
+        base = session.copy()
+        base.apply(r0)
+        text = base.to_toml()
+        included = [lv for lv in base.levels if lv.include]
+        ids = [lv.id for lv in included]
+        sigma = r0.sigma if r0.sigma else session.options.default_uncertainty
+        if method == "montecarlo":
+            u = np.array([lv.uncertainty if lv.uncertainty else sigma for lv in included])
+            e = monte_carlo_draws([lv.energy for lv in included], u, runs, seed)
+            draws = [{"energies": row.tolist()} for row in e]
+            given = sum(1 for lv in included if lv.uncertainty)
+            how = (f"energies perturbed by N(0, u): {given} levels with their uncertainty, "
+                   f"{len(included) - given} with the fit's sigma = {sigma:.4g} cm-1")
+        else:
+            c = bootstrap_counts(len(included), runs, seed)
+            draws = [{"counts": row.tolist()} for row in c]
+            how = f"{len(included)} levels resampled with replacement (weights = multiplicity)"
+        n_workers = 1 if serial else max(1, len(runner.client.scheduler_info()["workers"]))
+        parts = chunks(runs, 1 if serial else 4 * n_workers)
+        payloads = [(text, ids, [draws[i] for i in part]) for part in parts]
 
-    def step(k: int, _total: int) -> None:
-        if progress:
-            done[0] = sum(len(parts[i]) for i in range(k))
-            progress(done[0], runs)
+        def step(k: int, _total: int) -> None:
+            if progress:
+                progress(sum(len(parts[i]) for i in range(k)), runs)
 
-    out = run_tasks(refit_task, payloads, serial=serial,
-                    scheduler=None if scheduler in (None, "local") else scheduler,
-                    workers=workers, progress=step)
+        out = runner.map(refit_task, payloads, step)
     results = [x for chunk in out for x in chunk]
     return summarise_refits(base, r0, results, method, runs, seed, how)
 
