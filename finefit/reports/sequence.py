@@ -184,6 +184,7 @@ def sequence_figure(analysis, path: str | Path, new=None) -> Path:
             bottom.text(0.5, 0.5, "no ratio\n(no ab initio value)", ha="center", va="center",
                         fontsize=7, transform=bottom.transAxes)
             bottom.set_yticks([])
+            bottom.set_xticks([])
         bottom.set_xlabel("Z", fontsize=8)
         bottom.tick_params(labelsize=7)
     axes[0, 0].set_ylabel("cm$^{-1}$", fontsize=8)
