@@ -1051,6 +1051,10 @@ def build_parser() -> argparse.ArgumentParser:
                     choices=("list", "show", "compare", "use", "remove"))
     sp.add_argument("names", nargs="*")
     sp.set_defaults(func=cmd_sets)
+
+    from finefit.cli_sequence import register  # sequence, resample
+
+    register(sub)
     return p
 
 
