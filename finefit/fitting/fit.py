@@ -390,18 +390,22 @@ class FitProblem:
         floor = float(np.median(self.u)) if self.options.weighting == "uncertainty" else 1.0
         return max(sigma, floor, 1e-3)
 
-    def _global_attachment(self, v: np.ndarray) -> dict:
-        """The global assignment of every block at ``v`` (not applied)."""
+    def _blocks_at(self, v: np.ndarray):
+        """Per attached block at ``v``: key, its levels, model, J block and eigen-solution."""
         x = self.x_of(v)
-        scale = self._scale(v)
         lv_by_id = {lv.id: lv for lv in self.levels}
-        out = {}
         for key, att in self.attachments.items():
             parity, j2 = key
             model = self.models[parity]
             b = next(bb for bb in model.blocks if bb.J2 == j2)
             eig = model.eigen_block(b, self._model_x(x, parity))
-            lvs = [lv_by_id[i] for i in att.level_ids]
+            yield key, att, [lv_by_id[i] for i in att.level_ids], model, b, eig
+
+    def _global_attachment(self, v: np.ndarray) -> dict:
+        """The global assignment of every block at ``v`` (not applied)."""
+        scale = self._scale(v)
+        out = {}
+        for key, att, lvs, model, b, eig in self._blocks_at(v):
             new = global_attach_block(
                 lvs, eig.energies, eig.vectors, coupling_data(model), b.state_config,
                 model.configurations, att.eigen_index, scale,
@@ -532,15 +536,8 @@ class FitProblem:
 
     def _label_attachment(self, v: np.ndarray) -> dict:
         """Every block attached the way the start does it (labels first) at ``v``."""
-        x = self.x_of(v)
-        lv_by_id = {lv.id: lv for lv in self.levels}
         out = {}
-        for key, att in self.attachments.items():
-            parity, j2 = key
-            model = self.models[parity]
-            b = next(bb for bb in model.blocks if bb.J2 == j2)
-            eig = model.eigen_block(b, self._model_x(x, parity))
-            lvs = [lv_by_id[i] for i in att.level_ids]
+        for key, att, lvs, model, b, eig in self._blocks_at(v):
             idx, _ = attach_block(lvs, eig.energies, eig.vectors, coupling_data(model),
                                   b.state_config, model.configurations, self.options.assignment)
             if not np.array_equal(idx, att.eigen_index):

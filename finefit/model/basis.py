@@ -487,21 +487,7 @@ class Basis:
         groups = [np.arange(n)]
         R = np.eye(n)
         for _, _, op in ops:
-            new_groups = []
-            for g in groups:
-                if g.size == 1:
-                    new_groups.append(g)
-                    continue
-                sub = R[:, g].T @ op @ R[:, g]
-                w, U = np.linalg.eigh((sub + sub.T) / 2)
-                R[:, g] = R[:, g] @ U
-                # cluster equal eigenvalues (they are quantised: differences >= 1e-3)
-                start = 0
-                for i in range(1, g.size + 1):
-                    if i == g.size or w[i] - w[i - 1] > 1e-6:
-                        new_groups.append(g[start:i])
-                        start = i
-            groups = new_groups
+            groups = split_degenerate(op, R, groups)
         # f shells: copies of a term with equal seniority are told apart by Racah's SO(7)
         # and G2 labels W and U (only built where such copies remain degenerate)
         if any(g.size > 1 for g in groups):
@@ -518,20 +504,7 @@ class Basis:
                     M = two_body(blk, two)[0] + one_body(blk, blk, one)
                     op = V.T @ (M @ V)
                     ops.append((kind, pos, op))
-                    new_groups = []
-                    for g in groups:
-                        if g.size == 1:
-                            new_groups.append(g)
-                            continue
-                        sub = R[:, g].T @ op @ R[:, g]
-                        w, U = np.linalg.eigh((sub + sub.T) / 2)
-                        R[:, g] = R[:, g] @ U
-                        start = 0
-                        for i in range(1, g.size + 1):
-                            if i == g.size or w[i] - w[i - 1] > 1e-6:
-                                new_groups.append(g[start:i])
-                                start = i
-                    groups = new_groups
+                    groups = split_degenerate(op, R, groups)
         # diagonal of R^T op R as one matrix product (a three-operand einsum is ~10x slower)
         qn = {(k, p): np.sum(R * (op @ R), axis=0) for k, p, op in ops}
         index_of = np.zeros(n, dtype=int)
@@ -680,6 +653,28 @@ class Basis:
     def integral_class_name(self, cls: IntegralClass) -> str:
         n = self.shell_names
         return f"R{cls.k}({n[cls.pair1[0]]}{n[cls.pair1[1]]};{n[cls.pair2[0]]}{n[cls.pair2[1]]})"
+
+
+def split_degenerate(op: np.ndarray, R: np.ndarray, groups: list[np.ndarray]) -> list[np.ndarray]:
+    """Diagonalise ``op`` inside each group of still-degenerate columns of ``R`` (in place).
+
+    Returns the finer groups: columns whose eigenvalues agree within 1e-6 (the operators
+    used here have quantised eigenvalues, differences >= 1e-3) stay together.
+    """
+    new_groups = []
+    for g in groups:
+        if g.size == 1:
+            new_groups.append(g)
+            continue
+        sub = R[:, g].T @ op @ R[:, g]
+        w, U = np.linalg.eigh((sub + sub.T) / 2)
+        R[:, g] = R[:, g] @ U
+        start = 0
+        for i in range(1, g.size + 1):
+            if i == g.size or w[i] - w[i - 1] > 1e-6:
+                new_groups.append(g[start:i])
+                start = i
+    return new_groups
 
 
 def _lookup(x: float, table: dict[tuple[int, ...], float], what: str) -> tuple[int, ...]:
