@@ -194,14 +194,15 @@ def _triple_product(U: dict, k1: int, k2: int, k3: int) -> np.ndarray:
 
 
 def _casimir_superoperator(U: dict, ranks: list[int], scale: float, O: np.ndarray) -> np.ndarray:
-    """sum_a [X_a, [X_a, O]] for the generators (2k+1)^(1/2) U^(k) of the given ranks."""
-    out = np.zeros_like(O)
+    """sum_a [X_a, [X_a, O]] = G O + O G - 2 sum_a X_a O X_a for the generators
+    (2k+1)^(1/2) U^(k) of the given ranks (G = sum_a X_a X_a, the Casimir on states)."""
+    G = sum((2 * k + 1) * _scalar_product(U, k) for k in ranks)
+    middle = np.zeros_like(O)
     for k in ranks:
         for q in range(-k, k + 1):
-            A, B = U[(k, q)], U[(k, -q)]
-            inner = B @ O - (B.T @ O.T).T
-            out += (2 * k + 1) * (-1) ** q * (A @ inner - (A.T @ inner.T).T)
-    return scale * out
+            # (-1)^q U_q O U_-q, with O U_-q = (U_-q^T O^T)^T for a sparse U
+            middle += (2 * k + 1) * (-1) ** q * (U[(k, q)] @ (U[(k, -q)].T @ O.T).T)
+    return scale * (G @ O + O @ G - 2.0 * middle)
 
 
 def _orthonormal_rows(X: np.ndarray, tol: float = 1e-12) -> np.ndarray:
@@ -353,3 +354,77 @@ def stack_three_body(parts: list[ThreeBodyTerms]) -> ThreeBodyTerms:
         col += k
     cat = [np.concatenate([getattr(p, x) for p in parts]) for x in "abcdef"]
     return ThreeBodyTerms(*cat, np.vstack(cols))
+
+
+def subshell_contiguous(so: SpinOrbitals, shell: int) -> bool:
+    """Whether the subshell's spin-orbitals have consecutive indices (the default order)."""
+    idx = so.of_shell(shell)
+    return bool(idx.size) and int(idx.max() - idx.min()) == idx.size - 1
+
+
+class SubshellOperator:
+    """A three-body operator of one subshell applied as O (x) 1 to the other subshells.
+
+    With the subshell's spin-orbitals consecutive, a+_a a+_b a+_c a_f a_e a_d (all in the
+    subshell) passes the same number of other occupied orbitals six times, so its
+    determinant matrix is the l^N matrix of O times the identity on the rest. The l^N
+    matrix is built once per N (by :func:`three_body` on all l^N determinants) and then
+    cut into each block: this replaces one sweep over all three-body terms per block.
+    """
+
+    def __init__(self, so: SpinOrbitals, shell: int, terms: ThreeBodyTerms) -> None:
+        self.orbitals = so.of_shell(shell)
+        self.mask = np.uint64(0)
+        for i in self.orbitals:
+            self.mask |= np.uint64(1) << np.uint64(int(i))
+        self.terms = terms
+        self._per_n: dict[int, tuple[np.ndarray, sp.csr_matrix, np.ndarray]] = {}
+
+    def _shell_matrices(self, n: int) -> tuple[np.ndarray, sp.csr_matrix, np.ndarray]:
+        """l^N determinants, a pattern matrix whose data are 1 + positions, and the values
+        (positions x types): one sparse cut per block then serves every type."""
+        if n not in self._per_n:
+            dets = np.sort(shell_determinants(self.orbitals, n))
+            blk = DeterminantBlock(0, 0, dets, np.zeros(dets.size, dtype=np.int64))
+            mats = [m.tocoo() for m in three_body(blk, self.terms)]
+            keys = np.unique(np.concatenate([m.row * dets.size + m.col for m in mats]))
+            values = np.zeros((keys.size, len(mats)))
+            for t, m in enumerate(mats):
+                values[np.searchsorted(keys, m.row * dets.size + m.col), t] = m.data
+            pattern = sp.csr_matrix(
+                (np.arange(1, keys.size + 1, dtype=np.float64),
+                 (keys // dets.size, keys % dets.size)),
+                shape=(dets.size, dets.size),
+            )
+            self._per_n[n] = (dets, pattern, values)
+        return self._per_n[n]
+
+    def block_matrices(self, block: DeterminantBlock) -> list[sp.csr_matrix]:
+        """The matrices (one per type) of the operator within a block of determinants."""
+        n_types = self.terms.weights.shape[1]
+        dets = block.dets
+        part = dets & self.mask
+        rest = dets & ~self.mask
+        count = np.bitwise_count(part).astype(np.int64)
+        rows, cols, vals = [], [], []
+        for n in np.unique(count[count >= 3]):
+            sel = np.flatnonzero(count == n)
+            shell_dets, pattern, values = self._shell_matrices(int(n))
+            loc = np.searchsorted(shell_dets, part[sel])
+            # one cut for the whole block; keep the pairs with the same other subshells
+            sub = pattern[loc][:, loc].tocoo()
+            same = rest[sel[sub.row]] == rest[sel[sub.col]]
+            rows.append(sel[sub.row[same]])
+            cols.append(sel[sub.col[same]])
+            vals.append(values[sub.data[same].astype(np.int64) - 1])
+        if not rows:
+            return [sp.csr_matrix((block.size, block.size)) for _ in range(n_types)]
+        r, c, v = np.concatenate(rows), np.concatenate(cols), np.vstack(vals)
+        # one sort into CSR order (the pairs are distinct), shared by every type
+        base = sp.csr_matrix((np.arange(1, r.size + 1, dtype=np.float64), (r, c)),
+                             shape=(block.size, block.size))
+        perm = base.data.astype(np.int64) - 1
+        return [
+            sp.csr_matrix((v[perm, t], base.indices, base.indptr), shape=base.shape)
+            for t in range(n_types)
+        ]

@@ -41,7 +41,8 @@ from finefit.angular.operators import (
 from finefit.angular.threebody import (
     D_SHELL_LABELS,
     F_SHELL_LABELS,
-    stack_three_body,
+    SubshellOperator,
+    subshell_contiguous,
     three_body,
     three_body_terms,
 )
@@ -369,12 +370,12 @@ class Basis:
                 # three-electron scalars (Judd 1966): only where the subshell has 3 electrons
                 # and 3 holes somewhere, so the engine builds and applies them only there
                 names3 = list(F_SHELL_LABELS if l == 3 else D_SHELL_LABELS)
-                start = sum(p.weights.shape[1] for p in three_parts)
-                three_parts.append(three_body_terms(so, s, names3))
+                start = sum(p.terms.weights.shape[1] for p in three_parts)
+                three_parts.append(SubshellOperator(so, s, three_body_terms(so, s, names3)))
                 for j, nm in enumerate(names3):
                     ops.append(EffectiveOperator(s, nm, "T", int(nm[1:]), 3, (), -1, start + j))
         self.effective_operators: list[EffectiveOperator] = ops
-        self._three_terms = stack_three_body(three_parts) if three_parts else None
+        self._three_parts: list = three_parts
         # one sweep per block for the Coulomb and the effective two-body terms: they act on
         # (nearly) the same spin-orbital quadruples, so the stacked list costs about as
         # much as the Coulomb terms alone
@@ -384,6 +385,18 @@ class Basis:
             if parts
             else self._coulomb_terms
         )
+
+    def _three_body_matrices(self, blk: DeterminantBlock) -> list:
+        """Block matrices of the three-electron operators (O (x) 1 where the subshell's
+        spin-orbitals are consecutive, else the general sweep over all terms)."""
+        out: list = []
+        for part in self._three_parts:
+            if subshell_contiguous(self.spin_orbitals, int(self.spin_orbitals.shell[
+                    part.orbitals[0]])):
+                out.extend(part.block_matrices(blk))
+            else:
+                out.extend(three_body(blk, part.terms))
+        return out
 
     def _effective_matrices(
         self, V: np.ndarray, L: int, S2: int, two: list, three: list
@@ -465,8 +478,7 @@ class Basis:
                 if coul is None:
                     both = two_body(blk, self._block_terms)
                     coul, eff = both[: self._n_coulomb], both[self._n_coulomb :]
-                    eff3 = ([] if self._three_terms is None
-                            else three_body(blk, self._three_terms))
+                    eff3 = self._three_body_matrices(blk)
                 V, labels = self._label(info, V, L, S2, coul, pairing_cache)
                 vectors.append(V)
                 states.extend(labels)
