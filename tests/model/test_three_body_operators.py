@@ -83,8 +83,11 @@ def test_operators_span_the_even_rank_three_electron_scalars(l, n_even, n_all):
     U = unit_tensors(l)
     two = [coupled(U, (k, k)) for k in range(2 * l + 1)]  # identity, F^k, alpha, beta, gamma
     assert rank(two) == 2 * l + 1
-    triads = lambda ranks: [t for t in itertools.combinations_with_replacement(ranks, 3)
-                            if t[2] <= t[0] + t[1] and sum(t) % 2 == 0]
+
+    def triads(ranks):
+        return [t for t in itertools.combinations_with_replacement(ranks, 3)
+                if t[2] <= t[0] + t[1] and sum(t) % 2 == 0]
+
     even = [coupled(U, t) for t in triads(range(2, 2 * l + 1, 2))]
     every = [coupled(U, t) for t in triads(range(1, 2 * l + 1))]
     assert rank(two + even) - rank(two) == n_even
@@ -238,3 +241,19 @@ def test_hellmann_feynman_against_finite_differences(cfgs, names):
             fd = (sp.block_solution(b.J2)[0] - sm.block_solution(b.J2)[0]) / (2 * h)
             an = [jac[order[(b.J2, k)], p] for k in range(b.size)]
             assert an == pytest.approx(fd, abs=1e-6)
+
+
+def test_sessions_start_the_three_electron_operators_fixed_at_zero():
+    from pathlib import Path
+
+    from finefit.session import Session, load
+
+    s = Session.new(["4f3"], Z=60, charge=3)
+    for t in F_T:
+        p = s.parameters[f"4f3: {t}(4f)"]
+        # finefit's normalisation is not Judd's: the published values do not apply
+        assert not p.vary and p.value == 0.0
+    # a file written before the operators existed keeps its model: fixed at 0
+    old = load(Path(__file__).parents[2] / "sample_sessions" / "kestrel_iron_group.toml")
+    for name in ("3d7: T1(3d)", "3d7: T2(3d)", "3d6 4s: T1(3d)", "3d5 4s2: T2(3d)"):
+        assert old.parameters[name].value == 0.0 and not old.parameters[name].vary
