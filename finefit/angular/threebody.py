@@ -180,29 +180,35 @@ def _scalar_product(U: dict, k: int) -> np.ndarray:
 
 
 def _triple_product(U: dict, k1: int, k2: int, k3: int) -> np.ndarray:
+    """(U^(k1) U^(k2) U^(k3))^(0) = sum (k1 k2 k3; q1 q2 q3) U_q1 U_q2 U_q3 on l^3."""
     out = None
     for q1 in range(-k1, k1 + 1):
+        inner = None  # sum over q2 of the 3j-weighted U_q2 U_q3, q3 = -q1 - q2
         for q2 in range(-k2, k2 + 1):
             q3 = -q1 - q2
             if abs(q3) > k3:
                 continue
             c = three_j2(2 * k1, 2 * k2, 2 * k3, 2 * q1, 2 * q2, 2 * q3)
             if c != 0.0:
-                term = c * (U[(k1, q1)] @ (U[(k2, q2)] @ U[(k3, q3)]))
-                out = term if out is None else out + term
+                term = c * (U[(k2, q2)] @ U[(k3, q3)])
+                inner = term if inner is None else inner + term
+        if inner is not None:
+            term = U[(k1, q1)] @ inner
+            out = term if out is None else out + term
     return out.toarray()
 
 
-def _casimir_superoperator(U: dict, ranks: list[int], scale: float, O: np.ndarray) -> np.ndarray:
+def _casimir_superoperator(
+    U: dict, ranks: list[int], scale: float, G: np.ndarray, O: np.ndarray
+) -> np.ndarray:
     """sum_a [X_a, [X_a, O]] = G O + O G - 2 sum_a X_a O X_a for the generators
     (2k+1)^(1/2) U^(k) of the given ranks (G = sum_a X_a X_a, the Casimir on states)."""
-    G = sum((2 * k + 1) * _scalar_product(U, k) for k in ranks)
     middle = np.zeros_like(O)
     for k in ranks:
         for q in range(-k, k + 1):
             # (-1)^q U_q O U_-q, with O U_-q = (U_-q^T O^T)^T for a sparse U
             middle += (2 * k + 1) * (-1) ** q * (U[(k, q)] @ (U[(k, -q)].T @ O.T).T)
-    return scale * (G @ O + O @ G - 2.0 * middle)
+    return G @ O + O @ G - 2.0 * scale * middle
 
 
 def _orthonormal_rows(X: np.ndarray, tol: float = 1e-12) -> np.ndarray:
@@ -274,7 +280,8 @@ def subshell_three_body(l: int) -> SubshellThreeBody:
     groups_idx = [np.arange(len(mats))]
     values = []
     for ranks, scale in groups:
-        images = [_casimir_superoperator(U, ranks, scale, b) for b in mats]
+        G = scale * sum((2 * k + 1) * _scalar_product(U, k) for k in ranks)
+        images = [_casimir_superoperator(U, ranks, scale, G, b) for b in mats]
         M = np.array([[np.sum(a * b) for b in images] for a in mats])
         M = (M + M.T) / 2
         new_groups = []
