@@ -100,48 +100,44 @@ def _below(i) -> np.ndarray:
     return (np.left_shift(np.uint64(1), np.asarray(i, dtype=np.uint64))) - np.uint64(1)
 
 
-def three_body(block: DeterminantBlock, terms: ThreeBodyTerms) -> list[sp.csr_matrix]:
+def three_body(
+    block: DeterminantBlock, terms: ThreeBodyTerms, chunk: int = 256
+) -> list[sp.csr_matrix]:
     """One matrix per term type of a three-body operator within a block of determinants.
 
     Annihilation a_f a_e a_d removes d, then e, then f (each sign counts the occupied
-    orbitals below); creation a+_c, a+_b, a+_a adds them back in that order.
+    orbitals below); creation a+_c, a+_b, a+_a adds them back in that order. Vectorised
+    over (determinant, term) pairs, ``chunk`` terms at a time.
     """
     n_types = terms.weights.shape[1]
-    rows, cols, term_idx, signs = [], [], [], []
     one = np.uint64(1)
     dets = block.dets
-    for d, e, f, chunk in terms.groups():
-        mask = (one << np.uint64(d)) | (one << np.uint64(e)) | (one << np.uint64(f))
-        sel = np.flatnonzero((dets & mask) == mask)
-        if sel.size == 0:
+    u = {x: getattr(terms, x).astype(np.uint64) for x in "abcdef"}
+    gone = (one << u["d"]) | (one << u["e"]) | (one << u["f"])
+    made = (one << u["a"]) | (one << u["b"]) | (one << u["c"])
+    rows, cols, term_idx, signs = [], [], [], []
+    for lo in range(0, terms.a.size, chunk):
+        t_sl = slice(lo, lo + chunk)
+        hit = (dets[:, None] & gone[None, t_sl]) == gone[None, t_sl]
+        i_det, i_t = np.nonzero(hit)
+        if i_det.size == 0:
             continue
-        det = dets[sel]
-        # a_f a_e a_d |D>: a_d acts first
-        sign = _parity(det & _below(d))
-        x = det ^ (one << np.uint64(d))
-        sign ^= _parity(x & _below(e))
-        x ^= one << np.uint64(e)
-        sign ^= _parity(x & _below(f))
-        x ^= one << np.uint64(f)
-        ta = terms.a[chunk].astype(np.uint64)
-        tb = terms.b[chunk].astype(np.uint64)
-        tc = terms.c[chunk].astype(np.uint64)
-        add = (one << ta) | (one << tb) | (one << tc)
-        free = (x[:, None] & add[None, :]) == 0
-        # a+_a a+_b a+_c: a+_c acts first
-        s = sign[:, None] ^ _parity(x[:, None] & _below(tc)[None, :])
-        y = x[:, None] | (one << tc)[None, :]
-        s ^= _parity(y & _below(tb)[None, :])
-        y = y | (one << tb)[None, :]
-        s ^= _parity(y & _below(ta)[None, :])
-        new = y | (one << ta)[None, :]
-        idx, found = block.locate(new)
-        ok = free & found
-        r_i, t_i = np.nonzero(ok)
-        rows.append(idx[r_i, t_i])
-        cols.append(sel[r_i])
-        term_idx.append(chunk[t_i])
-        signs.append(s[r_i, t_i])
+        i_t = i_t + lo
+        x = dets[i_det]
+        sign = np.zeros(x.size, dtype=np.int8)
+        for o in ("d", "e", "f"):  # a_d acts first
+            sign ^= _parity(x & _below(u[o][i_t]))
+            x = x ^ (one << u[o][i_t])
+        free = (x & made[i_t]) == 0
+        i_det, i_t, x, sign = i_det[free], i_t[free], x[free], sign[free]
+        for o in ("c", "b", "a"):  # a+_c acts first
+            sign ^= _parity(x & _below(u[o][i_t]))
+            x = x | (one << u[o][i_t])
+        idx, found = block.locate(x)
+        rows.append(idx[found])
+        cols.append(i_det[found])
+        term_idx.append(i_t[found])
+        signs.append(sign[found])
     if not rows:
         return [sp.csr_matrix((block.size, block.size)) for _ in range(n_types)]
     rows_a = np.concatenate(rows)
