@@ -82,15 +82,6 @@ class ThreeBodyTerms:
     f: np.ndarray
     weights: np.ndarray  # (n_terms, n_types)
 
-    def groups(self):
-        key = (self.d * 64 + self.e) * 64 + self.f
-        order = np.argsort(key, kind="stable")
-        bounds = np.flatnonzero(np.diff(key[order])) + 1
-        for chunk in np.split(order, bounds):
-            if chunk.size:
-                i = chunk[0]
-                yield int(self.d[i]), int(self.e[i]), int(self.f[i]), chunk
-
 
 def _parity(x: np.ndarray) -> np.ndarray:
     return (np.bitwise_count(x) & 1).astype(np.int8)
@@ -343,20 +334,6 @@ def three_body_terms(so: SpinOrbitals, shell: int, names: list[str]) -> ThreeBod
     return ThreeBodyTerms(created[:, 0], created[:, 1], created[:, 2],
                           annihilated[:, 0], annihilated[:, 1], annihilated[:, 2],
                           w * sign[:, None])
-
-
-def stack_three_body(parts: list[ThreeBodyTerms]) -> ThreeBodyTerms:
-    """One term list with one weight column per part."""
-    n_types = sum(p.weights.shape[1] for p in parts)
-    cols, col = [], 0
-    for p in parts:
-        k = p.weights.shape[1]
-        wp = np.zeros((p.a.size, n_types))
-        wp[:, col: col + k] = p.weights
-        cols.append(wp)
-        col += k
-    cat = [np.concatenate([getattr(p, x) for p in parts]) for x in "abcdef"]
-    return ThreeBodyTerms(*cat, np.vstack(cols))
 
 
 def subshell_contiguous(so: SpinOrbitals, shell: int) -> bool:
