@@ -257,3 +257,23 @@ def test_sessions_start_the_three_electron_operators_fixed_at_zero():
     old = load(Path(__file__).parents[2] / "sample_sessions" / "kestrel_iron_group.toml")
     for name in ("3d7: T1(3d)", "3d7: T2(3d)", "3d6 4s: T1(3d)", "3d5 4s2: T2(3d)"):
         assert old.parameters[name].value == 0.0 and not old.parameters[name].vary
+
+
+@pytest.mark.parametrize("cfg,shell,names", [("3d5", "3d", D_T), ("4f7", "4f", F_T)])
+def test_half_filled_shell_connects_only_different_seniorities(cfg, shell, names):
+    # quasispin (Judd, Second Quantization and Atomic Spectroscopy, 1967; from memory): a
+    # three-electron operator orthogonal to the fewer-electron ones has odd quasispin rank
+    # K, and in the half-filled shell (M_Q = 0) <Q 0|T^K_0|Q 0> ~ (Q K Q; 0 0 0) = 0: no
+    # matrix element between states of equal seniority, while different seniorities mix
+    m = Model(cfg)
+    for t in names:
+        same, different = 0.0, 0.0
+        for b in m.blocks:
+            C = m.coefficient_matrix(f"{cfg}: {t}({shell})", b.J)
+            v = np.array([m.basis.ls_states[i].subshell_terms[0].seniority
+                          for i in b.state_index])
+            eq = v[:, None] == v[None, :]
+            same = max(same, np.abs(C[eq]).max())
+            if (~eq).any():
+                different = max(different, np.abs(C[~eq]).max())
+        assert same < 1e-9 and different > 1.0, t
