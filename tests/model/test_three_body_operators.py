@@ -96,6 +96,10 @@ def test_operators_span_the_even_rank_three_electron_scalars(l, n_even, n_all):
     assert len(ops) == n_even
     # each operator lies in the even-rank span and is orthogonal to the two-electron ones
     for m in ops.values():
+        # finefit's scale and sign (not Judd's, which could not be checked): tr t^2 over
+        # the l^3 determinants = their number, tr t^3 > 0
+        assert np.sum(m * m) == pytest.approx(m.shape[0])
+        assert np.trace(m @ m @ m) > 0.1 * m.shape[0]
         assert rank(two + even + [m]) == rank(two + even)
         for t in two:
             assert abs(np.sum(m * t)) < 1e-9 * np.sqrt(np.sum(t * t)) * np.sqrt(m.size)
