@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from finefit.fitting.synthetic import INVENTED_IRON_GROUP, synthetic_levels
+from finefit.notation.jvalues import format_j
 from finefit.session import Session
 
 HERE = Path(__file__).resolve().parent
@@ -151,8 +152,72 @@ def two_parity() -> tuple[Session, str]:
     return s, "\n".join(rows) + "\n"
 
 
+def _compilation_configuration(head: str) -> str:
+    """'3d6(5D)4s' -> '3d6.(5D).4s', '3d5 4s2' -> '3d5.4s2' (the compilations' writing)."""
+    out = head.replace(" ", ".").replace(")", ").").replace("(", ".(")
+    return out.rstrip(".").replace("..", ".")
+
+
+def iron_group_level_list() -> str:
+    """An invented level list as a published compilation would print it.
+
+    INVENTED: levels of 3d6 4s + 3d7 computed from parameters near the scaled
+    Hartree-Fock values finefit gives this (made-up) ion, with effective operators and
+    2 cm-1 noise, in the compilations' tab-separated layout with ordering letters, the
+    repeated-term index, a bracketed (derived) level, a doubtful level, an unresolved
+    J, a level of a configuration the session does not have, and the limit row.
+    """
+    s = Session.new(["3d6 4s", "3d7"], Z=26, charge=1)
+    s.fill_ab_initio()
+    rng = np.random.default_rng(2027)
+    true = {}
+    for name, p in s.parameters.items():
+        short = name.split(": ")[-1]
+        if short.startswith(("alpha", "beta")):
+            true[name] = 50.0 if short.startswith("alpha") else -250.0
+        elif short == "Eav":
+            true[name] = p.value
+        else:
+            true[name] = p.value * (1 + 0.04 * rng.standard_normal())
+    model = s.models["even"]
+    levels = synthetic_levels(model, true, noise=2.0, seed=2027, max_levels=60)
+    shift = min(lv.energy for lv in levels)
+    terms: dict[tuple[str, str], float] = {}
+    for lv in levels:
+        head, _, final = lv.label.rpartition(" ")
+        key = (head, final)
+        terms[key] = min(terms.get(key, np.inf), lv.energy)
+    letters: dict[tuple[str, str], str] = {}
+    by_symbol: dict[str, list[tuple[float, tuple[str, str]]]] = {}
+    for key, e in terms.items():
+        symbol = key[1].rstrip("0123456789")
+        by_symbol.setdefault(symbol, []).append((e, key))
+    for items in by_symbol.values():
+        for k, (_, key) in enumerate(sorted(items)):
+            letters[key] = "abcdefghijklmnopqrstuvwxyz"[k]
+    rows = []
+    for n, lv in enumerate(sorted(levels, key=lambda x: x.energy)):
+        head, _, final = lv.label.rpartition(" ")
+        prefix = suffix = ""
+        j = format_j(lv.J)
+        if n == 38:
+            prefix, suffix = "[", "]"  # derived from other levels, not observed
+        if n == 45:
+            suffix = "?"  # doubtful
+        if n == 52:
+            j = j + "," + format_j(lv.J + 1)  # J not resolved
+        rows.append((_compilation_configuration(head), f"{letters[(head, final)]} {final}", j,
+                     prefix, f"{lv.energy - shift:.2f}", suffix))
+    rows.append(("3d6.(5D).4p", "z 6D*", "9/2", "", "38000.51", ""))  # another configuration
+    rows.append(("Kx III (3d6 5D<4>)", "Limit", "---", "", "130000", ""))
+    header = "Configuration\tTerm\tJ\tPrefix\tLevel (cm-1)\tSuffix\n"
+    body = "".join("\t".join(f'"{c}"' for c in row) + "\t\n" for row in rows)
+    return header + body
+
+
 def main() -> None:
     iron_group().save(HERE / "kestrel_iron_group.toml")
+    (HERE / "kestrel_iron_group_levels.tsv").write_text(iron_group_level_list())
     noble_gas_like().save(HERE / "kestrel_neon_like.toml")
     s, lines = two_parity()
     s.save(HERE / "kestrel_two_parity.toml")

@@ -56,7 +56,7 @@ class OperatorBlock:
         doubled, so that v^T C_p v = P[k] @ (v[rows] * v[cols]) with half the products.
         Cached per parameter selection.
         """
-        key = None if params is None else tuple(int(i) for i in params)
+        key = None if params is None else np.asarray(params, dtype=np.int64).tobytes()
         hit = self._packed.get(key)
         if hit is None:
             rows, cols = np.triu_indices(self.size)
@@ -351,8 +351,9 @@ class Model:
             return values.astype(float)
         x = np.zeros(len(self.parameters))
         for name, val in values.items():
+            i = self.index(name)
             try:
-                x[self.index(name)] = float(val)
+                x[i] = float(val)
             except (TypeError, ValueError):
                 raise FinefitError(f"value of {name!r} is not a number: {val!r}", name) from None
         if not np.all(np.isfinite(x)):

@@ -39,3 +39,43 @@ def test_clebsch_gordan_closed_forms():
     # (j j 0; m -m 0) = (-1)^(j-m)/sqrt(2j+1) (Edmonds 1957, eq. 3.7.9)
     assert three_j2(2, 2, 0, 2, -2, 0) == pytest.approx(3**-0.5)
     assert three_j2(2, 2, 0, 0, 0, 0) == pytest.approx(-(3**-0.5))
+
+
+def test_run_time_symbols_match_sympy_for_integer_and_half_integer_arguments():
+    # reference library: sympy.physics.wigner (Racah's formula in exact arithmetic); the
+    # engine takes integer arguments from the wigners library and half-integer ones from
+    # its own exact Racah sum, so both routes are covered here (all doubled arguments)
+    from sympy import Rational
+    from sympy.physics.wigner import clebsch_gordan, wigner_3j
+
+    def h(x):
+        return Rational(x, 2)
+
+    checked = {"integer": 0, "half": 0}
+    for j1, j2, j3 in itertools.product(range(0, 7), range(0, 7), range(0, 8)):
+        for m1 in range(-j1, j1 + 1, 2):
+            for m2 in range(-j2, j2 + 1, 2):
+                m3 = -m1 - m2
+                if abs(m3) > j3 or (j3 + m3) % 2:
+                    continue
+                ref3 = float(wigner_3j(h(j1), h(j2), h(j3), h(m1), h(m2), h(m3)))
+                refcg = float(clebsch_gordan(h(j1), h(j2), h(j3), h(m1), h(m2), h(-m3)))
+                assert three_j2(j1, j2, j3, m1, m2, m3) == pytest.approx(ref3, abs=1e-14)
+                assert clebsch_gordan2(j1, m1, j2, m2, j3, -m3) == pytest.approx(
+                    refcg, abs=1e-14)
+                if ref3:
+                    checked["integer" if j1 % 2 == j2 % 2 == j3 % 2 == 0 else "half"] += 1
+    assert checked["integer"] > 100 and checked["half"] > 300
+
+
+def test_spin_half_clebsch_gordan_closed_forms():
+    # <1/2 1/2, 1/2 -1/2 | 1 0> = 1/sqrt(2), <1/2 1/2, 1/2 -1/2 | 0 0> = 1/sqrt(2),
+    # <1 1, 1/2 -1/2 | 1/2 1/2> = sqrt(2/3) (Condon & Shortley 1935, table 2^3; any
+    # quantum-mechanics text's spin-1/2 coupling table)
+    assert clebsch_gordan2(1, 1, 1, -1, 2, 0) == pytest.approx(2**-0.5, abs=1e-15)
+    assert clebsch_gordan2(1, 1, 1, -1, 0, 0) == pytest.approx(2**-0.5, abs=1e-15)
+    assert clebsch_gordan2(2, 2, 1, -1, 1, 1) == pytest.approx((2 / 3) ** 0.5, abs=1e-15)
+    # selection rules: triangle, m sum and |m| <= j give zero instead of an error
+    assert clebsch_gordan2(1, 1, 1, 1, 6, 2) == 0.0
+    assert three_j2(1, 1, 2, 1, 1, 0) == 0.0
+    assert three_j2(2, 2, 2, 4, -4, 0) == 0.0
