@@ -56,8 +56,9 @@ from finefit.threads import with_engine_threads
 DEFAULT_VARY = {"Eav", "F", "G", "zeta"}
 # In d and f shells the two-electron corrections alpha, beta (and gamma for f) are
 # free in practically every published fit, so a new session varies them too; the
-# three-electron T^i and the magnetic M^k, P^k start fixed at typical values
-# (# common practice).
+# three-electron T^i and the magnetic M^k, P^k start fixed (# common practice), the T^i
+# at 0 because their published values refer to a normalisation finefit could not check
+# (see finefit/angular/threebody.py).
 DEFAULT_VARY_DF = {"alpha", "beta", "gamma"}
 
 
