@@ -34,6 +34,9 @@ _LAZY = {
     "Session": "finefit.session",
     "load": "finefit.session",
     "optimise_levels": "finefit.session",
+    "predict_member": "finefit.sequence",
+    "fit_sequence": "finefit.sequence",
+    "resample": "finefit.refits",
 }
 
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
@@ -48,6 +51,8 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
         hartree_fock,
         hydrogenic,
     )
+    from finefit.refits import resample
+    from finefit.sequence import fit_sequence, predict_member
     from finefit.session import Session, load, optimise_levels
 
 
@@ -79,6 +84,9 @@ __all__ = [
     "Solution",
     "load",
     "optimise_levels",
+    "predict_member",
+    "fit_sequence",
+    "resample",
     "hydrogenic_zeta",
     "lande_zeta",
 ]

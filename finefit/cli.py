@@ -1,4 +1,8 @@
-"""The ``finefit`` command line. Exit status: 0 ok, 1 fit not converged, 2 bad input."""
+"""The ``finefit`` command line.
+
+Exit status: 0 ok, 1 fit not converged, 2 bad input (a message names the item; nothing
+was written), 3 internal error (a defect of finefit: please report it).
+"""
 
 from __future__ import annotations
 
@@ -9,8 +13,10 @@ import sys
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from finefit.errors import FinefitError
+from finefit.errors import FinefitError, clip_message, quote
+from finefit.fitting.validation import MAX_G, MAX_MAGNITUDE, parse_number
 from finefit.notation.jvalues import format_j
+from finefit.storage.atomic import check_path
 
 if TYPE_CHECKING:
     from rich.console import Console
@@ -52,7 +58,65 @@ def _load(path: str):
     from finefit.session import Session
 
     with _err_console().status("reading the session and building the energy matrices"):
-        return Session.load(path)
+        s = Session.load(path)
+    for w in s.warnings:
+        _err_console().print(Text("finefit: warning: " + w, style="yellow"))
+    return s
+
+
+# Largest grid a level search may score (a few arrays of this many float64 each).
+MAX_SEARCH_POINTS = 10_000_001
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse with messages that quote at most about 80 characters of a token."""
+
+    def error(self, message: str):  # type: ignore[override]
+        super().error(clip_message(message))
+
+
+def _number_arg(what: str, *, positive: bool = False, nonnegative: bool = False,
+                limit: float = MAX_MAGNITUDE):
+    """An argparse type: a finite number in ASCII digits (no nan, inf, other scripts)."""
+
+    def convert(text: str) -> float:
+        try:
+            return parse_number(text, what, positive=positive, nonnegative=nonnegative,
+                                limit=limit)
+        except FinefitError as exc:
+            raise argparse.ArgumentTypeError(str(exc)) from None
+
+    convert.__name__ = "number"
+    return convert
+
+
+def _int_arg(what: str, lo: int, hi: int):
+    """An argparse type: a whole number lo..hi written with ASCII digits."""
+
+    def convert(text: str) -> int:
+        t = text.strip()
+        if not t.isascii() or not t.lstrip("+-").isdigit():
+            raise argparse.ArgumentTypeError(f"{what} needs a whole number, got {quote(text)}")
+        v = int(t)
+        if not lo <= v <= hi:
+            raise argparse.ArgumentTypeError(f"{what} must be in {lo}..{hi}, got {v}")
+        return v
+
+    convert.__name__ = "whole number"
+    return convert
+
+
+def _write_session(s) -> None:
+    """Save the session (validated as the reader will read it) and show its warnings."""
+    s.save()
+    for w in s.warnings:
+        _err_console().print(Text("finefit: warning: " + w, style="yellow"))
+
+
+def _guard(args):
+    from finefit.storage.outputs import OutputGuard, session_companions
+
+    return OutputGuard(session_companions(args.session), force=bool(args.force))
 
 
 def _json(obj) -> None:
@@ -70,6 +134,8 @@ def cmd_new(args) -> int:
         s = Session.new(args.config, Z=args.Z, charge=args.charge,
                         ionization_limit=args.limit, name=args.name or "", title=args.title or "")
     s.save(path)
+    for w in s.warnings:
+        _err_console().print(Text("finefit: warning: " + w, style="yellow"))
     con = _console(args)
     n = sum(len(m.parameters) for m in s.models.values())
     con.print(f"created {path}: {', '.join(s.configurations)}; {n} parameters")
@@ -112,7 +178,7 @@ def cmd_set(args) -> int:
     for n in names:
         s.set_parameter(n, None if args.value is None else _float(args.value, "--value"),
                         vary, **kw)
-    s.save()
+    _write_session(s)
     _console(args).print(f"changed {len(names)} parameter(s): {', '.join(names)}")
     return EXIT_OK
 
@@ -124,15 +190,13 @@ def _match_parameters(s, pattern: str) -> list[str]:
         return [pattern]
     hits = [n for n in s.parameters if fnmatch.fnmatchcase(n, pattern)]
     if not hits:
-        raise FinefitError(f"no parameter matches {pattern!r}", pattern)
+        raise FinefitError(f"no parameter matches {quote(pattern)}", pattern)
     return hits
 
 
-def _float(text: str, what: str) -> float:
-    try:
-        return float(text)
-    except ValueError:
-        raise FinefitError(f"{what} needs a number, got {text!r}", what) from None
+def _float(text: str, what: str, **kw) -> float:
+    """A finite number in ASCII digits within physical magnitudes (else exit 2)."""
+    return parse_number(text, what, **kw)
 
 
 def _print_result(con: Console, s, r, args) -> None:
@@ -159,6 +223,8 @@ def cmd_fit(args) -> int:
     from rich.progress import Progress, SpinnerColumn, TextColumn
 
     s = _load(args.session)
+    if args.keep is not None:
+        s.check_set_name(args.keep)  # before the fit: a bad name must not cost a fit
     con = _console(args)
     show = not args.json and sys.stderr.isatty()
     with Progress(SpinnerColumn(), TextColumn("{task.description}"), console=_err_console(),
@@ -180,17 +246,17 @@ def cmd_fit(args) -> int:
         )
     if args.write:
         s.apply(r)
-    if args.keep:
+    if args.keep is not None:
         s.keep(r, args.keep)
-    if args.write or args.keep:
-        s.save()
+    if args.write or args.keep is not None:
+        _write_session(s)
     if args.json:
         _json(r.to_dict())
     else:
         _print_result(con, s, r, args)
-        if args.write or args.keep:
+        if args.write or args.keep is not None:
             con.print(f"saved {s.path}")
-    return EXIT_OK if r.converged else EXIT_NOT_CONVERGED
+    return EXIT_OK if r.converged or not r.fitted else EXIT_NOT_CONVERGED
 
 
 def cmd_check(args) -> int:
@@ -243,14 +309,13 @@ def cmd_attach(args) -> int:
     state = args.state
     if state.lower() == "none":
         value = None
+    elif state.strip().isascii() and state.strip().isdigit():
+        value = int(state)
     else:
-        try:
-            value = int(state)
-        except ValueError:
-            value = state
+        value = state
     s.attach(args.level, value)
     s.problem()  # the state must exist before anything is written
-    s.save()
+    _write_session(s)
     _console(args).print(f"level {args.level} attached to {state}")
     return EXIT_OK
 
@@ -260,24 +325,30 @@ def cmd_edit(args) -> int:
     changes = {}
     for item in args.changes:
         if "=" not in item:
-            raise FinefitError(f"{item!r} must look like field=value, e.g. label='3d7 4F'", item)
+            raise FinefitError(f"{quote(item)} must look like field=value, e.g. label='3d7 4F'",
+                               item)
         key, value = item.split("=", 1)
         key = key.strip()
         if key in ("energy", "uncertainty", "g"):
-            changes[key] = None if value.lower() in ("", "none") else _float(value, key)
+            if key == "energy" and value.lower() in ("", "none"):
+                raise FinefitError("energy cannot be removed: a level needs one", key)
+            changes[key] = None if value.lower() in ("", "none") else _float(
+                value, key, positive=(key == "uncertainty"),
+                limit=MAX_G if key == "g" else MAX_MAGNITUDE)
         elif key == "include":
             if value.lower() not in ("yes", "no", "true", "false"):
-                raise FinefitError(f"include must be yes or no, got {value!r}", key)
+                raise FinefitError(f"include must be yes or no, got {quote(value)}", key)
             changes[key] = value.lower() in ("yes", "true")
         elif key == "state":
             changes[key] = None if value.lower() in ("", "none") else (
-                int(value) if value.isdigit() else value)
+                int(value) if value.isascii() and value.isdigit() else value)
         else:
             changes[key] = value or None
     lv = s.update_level(args.level, **changes)
     s.problem()  # labels, J counts and attachments must still make sense
-    s.save()
-    _console(args).print(f"level {lv.id}: " + ", ".join(f"{k} = {v!r}" for k, v in changes.items()))
+    _write_session(s)
+    _console(args).print(f"level {lv.id}: "
+                         + ", ".join(f"{k} = {quote(v)}" for k, v in changes.items()))
     return EXIT_OK
 
 
@@ -285,7 +356,7 @@ def cmd_include(args, include: bool) -> int:
     s = _load(args.session)
     for lid in args.level:
         s.update_level(lid, include=include)
-    s.save()
+    _write_session(s)
     _console(args).print(f"{'included' if include else 'excluded'}: {', '.join(args.level)}")
     return EXIT_OK
 
@@ -369,10 +440,14 @@ def cmd_import(args) -> int:
 
 
 def cmd_export(args) -> int:
-    from finefit.storage.level_tables import write_levels
+    from finefit.storage.level_tables import format_levels
 
     s = _load(args.session)
-    p = write_levels(s.levels, args.output, args.format)
+    guard = _guard(args)
+    guard.check([args.output])
+    fmt = args.format or {".csv": "csv", ".tsv": "tsv"}.get(Path(args.output).suffix.lower(),
+                                                           "txt")
+    p = guard.write(args.output, format_levels(s.levels, fmt))
     _console(args).print(f"wrote {len(s.levels)} levels to {p}")
     return EXIT_OK
 
@@ -436,15 +511,15 @@ def cmd_sets(args) -> int:
         return EXIT_OK
     if action == "use":
         s.use_set(args.names[0])
-        s.save()
-        con.print(f"values of set {args.names[0]!r} are now the session's starting values")
+        _write_session(s)
+        con.print(f"values of set {quote(args.names[0])} are now the session's starting values")
         return EXIT_OK
     if action == "remove":
         s.remove_set(args.names[0])
-        s.save()
-        con.print(f"removed set {args.names[0]!r}")
+        _write_session(s)
+        con.print(f"removed set {quote(args.names[0])}")
         return EXIT_OK
-    raise FinefitError(f"unknown sets action {action!r}", action)
+    raise FinefitError(f"unknown sets action {quote(action)}", action)
 
 
 def cmd_abinitio(args) -> int:
@@ -458,11 +533,11 @@ def cmd_abinitio(args) -> int:
     scales = {}
     for item in args.scale or []:
         if "=" not in item:
-            raise FinefitError(f"--scale {item!r} must look like F=0.85", item)
+            raise FinefitError(f"--scale {quote(item)} must look like F=0.85", item)
         k, v = item.split("=", 1)
         if k not in ("F", "G", "R", "zeta"):
-            raise FinefitError(f"--scale {k!r}: use F, G, R or zeta", k)
-        scales[k] = _float(v, f"--scale {k}")
+            raise FinefitError(f"--scale {quote(k)}: use F, G, R or zeta", k)
+        scales[k] = _float(v, f"--scale {k}", positive=True, limit=10.0)
     show = sys.stderr.isatty()
     with Progress(SpinnerColumn(), TextColumn("{task.description}"), console=_err_console(),
                   transient=True, disable=not show) as prog:
@@ -471,7 +546,7 @@ def cmd_abinitio(args) -> int:
                                relativistic=args.relativistic,
                                progress=lambda msg: prog.update(task, description=msg),
                                zeta_method=args.zeta)
-    s.save()
+    _write_session(s)
     con = _console(args)
     tab = Table(title="Ab initio values (cm-1; configuration-average Hartree-Fock)",
                 title_justify="left")
@@ -494,9 +569,13 @@ def cmd_lines(args) -> int:
             pair, value = item.split("=", 1)
             a, b = (x.strip() for x in pair.split(","))
         except ValueError:
-            raise FinefitError(f"--radial {item!r} must look like 3s,3p=4.5", item) from None
-        radial[(a, b)] = _float(value, f"--radial {pair}")
+            raise FinefitError(f"--radial {quote(item)} must look like 3s,3p=4.5", item) from None
+        # radial dipole integrals are a few bohr; 1e4 bohr is far beyond any bound orbital
+        radial[(a, b)] = _float(value, f"--radial {quote(pair)}", limit=1e4)
     air_range = (0.0, 0.0) if args.vacuum else tuple(args.air_range)
+    if not args.vacuum and not air_range[0] < air_range[1]:
+        raise FinefitError(f"--air-range {air_range[0]:g} {air_range[1]:g}: FROM must be below "
+                           "TO", "--air-range")
     opt = None
     if args.optimise:
         opt = s.optimise_levels(args.optimise)  # for the Ritz covariance; nothing stored
@@ -598,6 +677,12 @@ def cmd_search(args) -> int:
     from finefit.storage.line_tables import read_lines
 
     s = _load(args.session)
+    points = 2 * args.window / args.step + 1
+    if points > MAX_SEARCH_POINTS:
+        raise FinefitError(
+            f"--window {args.window:g} with --step {args.step:g} makes {points:.3g} trial "
+            f"energies; at most {MAX_SEARCH_POINTS - 1:.0e} are scored (a wider step or a "
+            "narrower window)", "--step")
     ll = read_lines(args.lines, args.medium)
     parse_j(args.J, "--J")
     with _err_console().status("searching (predicted strengths need line strengths)"):
@@ -692,28 +777,37 @@ def cmd_optimise(args) -> int:
 
 def cmd_publish(args) -> int:
     from finefit.reports.publication import publication_tables
-    from finefit.storage.atomic import atomic_write_text
+    from finefit.storage.outputs import check_output_folder
 
     s = _load(args.session)
+    out = check_output_folder(args.output)
+    guard = _guard(args)
+    names = ("parameters.tex", "parameters.csv", "levels.tex", "levels.csv")
+    guard.check([out / n for n in names])
     r = s.fit() if args.fit else s.report()
-    out = Path(args.output)
+    tables_ = publication_tables(r, s.ion.name)
+    guard.check([out / n for n in tables_])
     written = []
-    for name, text in publication_tables(r, s.ion.name).items():
-        written.append(atomic_write_text(out / name, text, backup=True))
+    for name, text in tables_.items():
+        written.append(guard.write(out / name, text))
     _console(args).print("wrote " + ", ".join(str(p) for p in written))
-    return EXIT_OK if r.converged else EXIT_NOT_CONVERGED
+    return EXIT_OK if r.converged or not r.fitted else EXIT_NOT_CONVERGED
 
 
 def cmd_figures(args) -> int:
     from finefit.reports import figures
+    from finefit.storage.outputs import check_output_folder
 
     s = _load(args.session)
+    out = check_output_folder(args.output)
+    guard = _guard(args)
+    stems = ["oc", "levels"] + (["lines"] if set(s.models) == {"even", "odd"} else [])
+    guard.check([out / f"{stem}.{ext}" for stem in stems for ext in args.format])
     r = s.fit() if args.fit else s.report()
-    out = Path(args.output)
     written = []
     for ext in args.format:
-        written.append(figures.oc_figure(r, out / f"oc.{ext}"))
-        written.append(figures.level_diagram_figure(r, out / f"levels.{ext}"))
+        written.append(figures.oc_figure(r, out / f"oc.{ext}", guard.write))
+        written.append(figures.level_diagram_figure(r, out / f"levels.{ext}", guard.write))
     if set(s.models) == {"even", "odd"}:
         observed = None
         if args.lines:
@@ -722,7 +816,8 @@ def cmd_figures(args) -> int:
             observed = read_lines(args.lines).wavenumber
         lines, _ = s.predict_lines()
         for ext in args.format:
-            written.append(figures.stick_spectrum_figure(lines, observed, out / f"lines.{ext}"))
+            written.append(figures.stick_spectrum_figure(lines, observed, out / f"lines.{ext}",
+                                                         guard.write))
     _console(args).print("wrote " + ", ".join(str(p) for p in written))
     return EXIT_OK
 
@@ -736,7 +831,7 @@ def cmd_workspace(args) -> int:
 
 # ----------------------------------------------------------------------------- parser
 def build_parser() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(
+    p = _Parser(
         prog="finefit",
         description="Term analysis of atomic spectra: fit radial parameters of an "
         "intermediate-coupling Hamiltonian to observed levels.",
@@ -754,9 +849,11 @@ def build_parser() -> argparse.ArgumentParser:
     sp = add("new", "create a session from configurations", json_flag=False)
     sp.add_argument("--config", "-c", action="append", required=True,
                     help="a configuration such as '3d6 4s' (repeat for several)")
-    sp.add_argument("--Z", type=int, required=True, help="nuclear charge")
-    sp.add_argument("--charge", type=int, default=0, help="ion charge (0 = neutral)")
-    sp.add_argument("--limit", type=float, help="ionization limit in cm-1")
+    sp.add_argument("--Z", type=_int_arg("--Z", 1, 118), required=True, help="nuclear charge")
+    sp.add_argument("--charge", type=_int_arg("--charge", 0, 117), default=0,
+                    help="ion charge (0 = neutral)")
+    sp.add_argument("--limit", type=_number_arg("--limit", positive=True),
+                    help="ionization limit in cm-1")
     sp.add_argument("--name", help="ion name for reports, e.g. 'Fe II'")
     sp.add_argument("--title", help="a title for the session")
     sp.add_argument("--force", action="store_true", help="overwrite an existing file")
@@ -779,9 +876,12 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--radial", action="append", metavar="A,B=BOHR",
                     help="radial dipole integral <A|r|B>, e.g. 3s,3p=4.5 (others from "
                     "Hartree-Fock)")
-    sp.add_argument("--min-gf", type=float, default=0.0, help="omit weaker lines")
-    sp.add_argument("--limit", type=int, default=50, help="at most this many lines")
-    sp.add_argument("--air-range", nargs=2, type=float, default=[2000.0, 20000.0],
+    sp.add_argument("--min-gf", type=_number_arg("--min-gf", nonnegative=True), default=0.0,
+                    help="omit weaker lines")
+    sp.add_argument("--limit", type=_int_arg("--limit", 0, 10**9), default=50,
+                    help="at most this many lines")
+    sp.add_argument("--air-range", nargs=2, type=_number_arg("--air-range", positive=True),
+                    default=[2000.0, 20000.0],
                     metavar=("FROM", "TO"), help="air wavelengths inside this range, angstrom "
                     "(default 2000 20000, common practice)")
     sp.add_argument("--vacuum", action="store_true", help="vacuum wavelengths only")
@@ -795,10 +895,11 @@ def build_parser() -> argparse.ArgumentParser:
 
     sp = add("classify", "classify an observed line list by Ritz combinations of the levels")
     sp.add_argument("lines", help="line list (wavenumber or wavelength column)")
-    sp.add_argument("--tolerance", type=float, default=0.05, help="cm-1 (default 0.05)")
+    sp.add_argument("--tolerance", type=_number_arg("--tolerance", positive=True, limit=1e6),
+                    default=0.05, help="cm-1 (default 0.05)")
     sp.add_argument("--medium", choices=("air", "vacuum"), help="medium of the wavelengths")
-    sp.add_argument("--limit", type=int, default=200, help="list at most this many "
-                    "unclassified lines")
+    sp.add_argument("--limit", type=_int_arg("--limit", 0, 10**9), default=200,
+                    help="list at most this many unclassified lines")
     sp.set_defaults(func=cmd_classify)
 
     sp = add("optimise", "optimise the level energies from a classified line list (Ritz)")
@@ -828,11 +929,15 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("lines", help="line list (wavenumber or wavelength column)")
     sp.add_argument("--J", required=True, help="J of the missing level, e.g. 5/2")
     sp.add_argument("--parity", required=True, choices=("even", "odd"))
-    sp.add_argument("--energy", type=float, required=True, help="predicted energy, cm-1")
-    sp.add_argument("--window", type=float, default=500.0, help="+- cm-1 (default 500)")
-    sp.add_argument("--step", type=float, default=0.01, help="cm-1 (default 0.01)")
-    sp.add_argument("--tolerance", type=float, default=0.05, help="cm-1 (default 0.05)")
-    sp.add_argument("--top", type=int, default=10)
+    sp.add_argument("--energy", type=_number_arg("--energy"), required=True,
+                    help="predicted energy, cm-1")
+    sp.add_argument("--window", type=_number_arg("--window", positive=True), default=500.0,
+                    help="+- cm-1 (default 500)")
+    sp.add_argument("--step", type=_number_arg("--step", positive=True), default=0.01,
+                    help="cm-1 (default 0.01)")
+    sp.add_argument("--tolerance", type=_number_arg("--tolerance", positive=True, limit=1e6),
+                    default=0.05, help="cm-1 (default 0.05)")
+    sp.add_argument("--top", type=_int_arg("--top", 1, 100_000), default=10)
     sp.add_argument("--medium", choices=("air", "vacuum"))
     sp.add_argument("--unweighted", action="store_true",
                     help="count every explained line as 1 instead of its predicted gf")
@@ -842,6 +947,8 @@ def build_parser() -> argparse.ArgumentParser:
              json_flag=False)
     sp.add_argument("output", help="folder for parameters.tex/.csv and levels.tex/.csv")
     sp.add_argument("--fit", action="store_true", help="fit first (default: current values)")
+    sp.add_argument("--force", action="store_true",
+                    help="overwrite files finefit did not write (kept as .bak)")
     sp.set_defaults(func=cmd_publish)
 
     sp = add("figures", "O-C, level diagram and stick-spectrum figures (PNG and PDF)",
@@ -850,6 +957,8 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--fit", action="store_true", help="fit first (default: current values)")
     sp.add_argument("--lines", help="observed line list to draw under the predicted lines")
     sp.add_argument("--format", nargs="+", default=["png", "pdf"], choices=("png", "pdf"))
+    sp.add_argument("--force", action="store_true",
+                    help="overwrite files finefit did not write (kept as .bak)")
     sp.set_defaults(func=cmd_figures)
 
     sp = add("workspace", "open the interactive terminal workspace on a session",
@@ -933,6 +1042,8 @@ def build_parser() -> argparse.ArgumentParser:
     sp = add("export", "write the observed levels as a table", json_flag=False)
     sp.add_argument("output")
     sp.add_argument("--format", choices=("csv", "tsv", "txt"))
+    sp.add_argument("--force", action="store_true",
+                    help="overwrite a file finefit did not write (kept as .bak)")
     sp.set_defaults(func=cmd_export)
 
     sp = add("sets", "saved parameter sets: list, show, compare, use, remove")
@@ -940,13 +1051,24 @@ def build_parser() -> argparse.ArgumentParser:
                     choices=("list", "show", "compare", "use", "remove"))
     sp.add_argument("names", nargs="*")
     sp.set_defaults(func=cmd_sets)
+
+    from finefit.cli_sequence import register  # sequence, resample
+
+    register(sub)
     return p
 
 
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
     try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # usage errors (exit 2) and --help (exit 0) end here
+        return int(exc.code or 0) if isinstance(exc.code, int | None) else EXIT_BAD_INPUT
+    try:
+        for attr in ("session", "output", "lines", "table"):  # file names from the user
+            value = getattr(args, attr, None)
+            if isinstance(value, str):
+                check_path(value)
         from finefit.threads import engine_threads
 
         with engine_threads():
@@ -957,11 +1079,23 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         _err_console().print("finefit: interrupted")
         return 130
+    except MemoryError:
+        print("finefit: error: not enough memory for this request (the model or the "
+              "requested grid is too large for this machine)", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except OSError as exc:  # the system refused a file operation: not a defect of finefit
+        if os.environ.get("FINEFIT_DEBUG"):
+            raise
+        where = f" {quote(exc.filename)}" if getattr(exc, "filename", None) else ""
+        print(clip_message(f"finefit: error: cannot access{where}: {exc.strerror or exc}"),
+              file=sys.stderr)
+        return EXIT_BAD_INPUT
     except Exception as exc:  # noqa: BLE001 - last line of defence: no tracebacks for users
         if os.environ.get("FINEFIT_DEBUG"):
             raise
-        print(f"finefit: internal error: {type(exc).__name__}: {exc} "
-              "(set FINEFIT_DEBUG=1 for details)", file=sys.stderr)
+        print(clip_message(f"finefit: internal error: {type(exc).__name__}: {exc} "
+                           "(set FINEFIT_DEBUG=1 for details; please report it)"),
+              file=sys.stderr)
         return EXIT_INTERNAL
 
 

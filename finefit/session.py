@@ -19,8 +19,19 @@ from functools import lru_cache
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from finefit.errors import FinefitError
+from finefit.errors import FinefitError, quote
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
+from finefit.fitting.validation import (
+    MAX_MAGNITUDE,
+    check_configurations,
+    check_ion,
+    check_levels,
+    check_number,
+    check_parameter,
+    check_text,
+    parse_number,
+    validate_session,
+)
 from finefit.model.coupling import coupling_data
 from finefit.model.estimates import default_link, typical_value
 from finefit.model.hamiltonian import Model
@@ -48,8 +59,9 @@ if TYPE_CHECKING:  # the fit's modules load with the first fit or check (start-u
 DEFAULT_VARY = {"Eav", "F", "G", "zeta"}
 # In d and f shells the two-electron corrections alpha, beta (and gamma for f) are
 # free in practically every published fit, so a new session varies them too; the
-# three-electron T^i and the magnetic M^k, P^k start fixed at typical values
-# (# common practice).
+# three-electron T^i and the magnetic M^k, P^k start fixed (# common practice), the T^i
+# at 0 because their published values refer to a normalisation finefit could not check
+# (see finefit/angular/threebody.py).
 DEFAULT_VARY_DF = {"alpha", "beta", "gamma"}
 
 
@@ -70,6 +82,16 @@ def default_setting(spec: ParameterSpec, config: str, fresh: bool) -> ParameterS
     return ParameterSetting(
         value=typical_value(spec.short), vary=vary, link=default_link(config, spec.short)
     )
+
+
+def _number(value: object, what: str) -> float:
+    """A number given as text (ASCII digits only) or as a number; finite, physical size."""
+    if isinstance(value, str):
+        return parse_number(value, what)
+    try:
+        return check_number(float(value), what)
+    except (TypeError, ValueError, OverflowError):
+        raise FinefitError(f"{what} must be a number, got {quote(value)}", what) from None
 
 
 @lru_cache(maxsize=16)
@@ -117,7 +139,11 @@ class Session:
         self.options = data.options
         self.parameter_sets: list[ParameterSet] = list(data.parameter_sets)
         self.level_sets: list[LevelSet] = list(data.level_sets)
-        self.configurations = [str(parse_configuration(c)) for c in data.configurations]
+        # the ion and the electron count of every configuration are checked before any
+        # model is built (a configuration that cannot exist must not cost a build)
+        check_ion(self.ion.Z, self.ion.charge, self.ion.ionization_limit, self.ion.name)
+        self.configurations = check_configurations(list(data.configurations), self.ion.Z,
+                                                   self.ion.charge)
         self._sets = group_by_parity(self.configurations)
         self.models = {p: model_for(cfgs) for p, cfgs in self._sets.items()}
         self.parameters: dict[str, ParameterSetting] = {}
@@ -125,7 +151,7 @@ class Session:
         for name in data.parameters:
             if name not in known:
                 raise FinefitError(
-                    f"parameter {name!r} does not exist for configurations "
+                    f"parameter {quote(name)} does not exist for configurations "
                     f"{', '.join(self.configurations)}",
                     name,
                 )
@@ -141,6 +167,8 @@ class Session:
             self._check_level(lv, labels=False)
             self.levels.append(lv)
         self.last_result: FitResult | None = None
+        self.source_text: str | None = None  # the file's text as read or last written
+        self.warnings: list[str] = self.validate()
 
     # ------------------------------------------------------------------ creation
     @classmethod
@@ -155,10 +183,8 @@ class Session:
     ) -> Session:
         if isinstance(configurations, str):
             configurations = [configurations]
-        if not isinstance(Z, int) or not 1 <= Z <= 118:
-            raise FinefitError(f"Z = {Z!r} is not a nuclear charge (1..118)", "Z")
-        if not isinstance(charge, int) or not 0 <= charge < Z:
-            raise FinefitError(f"charge = {charge!r} must be 0 .. Z-1", "charge")
+        check_ion(Z, charge, ionization_limit, name)
+        check_text(title or "", "title", max_len=1000, lines=True)
         data = SessionData(
             ion=Ion(Z, charge, ionization_limit, name), configurations=list(configurations),
             parameters={}, levels=[], options=FitOptions(), title=title,
@@ -167,9 +193,25 @@ class Session:
 
     @classmethod
     def load(cls, path: str | Path) -> Session:
+        """Read and validate a session file (the same validation every save runs)."""
         p = Path(path)
         text = read_text(p, "session file")
-        return cls(parse_session(text, source=str(p)), path=p)
+        data = parse_session(text, source=str(p))
+        try:
+            s = cls(data, path=p)
+        except FinefitError as exc:
+            raise FinefitError(f"{quote(str(p))}: {exc}", exc.item) from None
+        s.source_text = text
+        return s
+
+    def validate(self) -> list[str]:
+        """Check the whole session as the reader will (no eigen-solve); returns warnings.
+
+        Raises FinefitError naming the first offending item.
+        """
+        return validate_session(self.ion, self.configurations, self.models, self.parameters,
+                                self.levels, self.options, self.parameter_sets, self.title,
+                                self.note)
 
     # ------------------------------------------------------------------ persistence
     def data(self) -> SessionData:
@@ -184,12 +226,20 @@ class Session:
         return dump_session(self.data())
 
     def save(self, path: str | Path | None = None) -> Path:
-        """Save atomically; the previous file is kept as ``<name>.bak``."""
+        """Save atomically; the previous file is kept as ``<name>.bak``.
+
+        The session is validated first and the text written is read back as the reader
+        will read it, so a save never leaves a file finefit refuses to open.
+        """
         target = Path(path) if path else self.path
         if target is None:
             raise FinefitError("no file name given for saving the session", "path")
-        atomic_write_text(target, self.to_toml())
+        self.warnings = self.validate()
+        text = self.to_toml()
+        Session(parse_session(text, source=str(target)))  # what the reader will see
+        atomic_write_text(target, text)
         self.path = target
+        self.source_text = text
         return target
 
     def copy(self) -> Session:
@@ -210,14 +260,11 @@ class Session:
         """Change a parameter; arguments left out keep their current setting."""
         if name not in self.parameters:
             raise FinefitError(
-                f"parameter {name!r} does not exist; known: {', '.join(self.parameters)}", name
-            )
+                f"parameter {quote(name)} does not exist; known: {', '.join(self.parameters)}",
+                name)
         s = self.parameters[name].copy()
         if value is not None:
-            try:
-                s.value = float(value)
-            except (TypeError, ValueError):
-                raise FinefitError(f"value of {name!r} must be a number: {value!r}", name) from None
+            s.value = _number(value, f"value of {quote(name)}")
         if vary is not None:
             s.vary = bool(vary)
         if min != "keep":
@@ -228,7 +275,7 @@ class Session:
             s.link = link or None
         if ab_initio != "keep":
             s.ab_initio = None if ab_initio is None else float(ab_initio)
-        s.check(name)
+        check_parameter(name, s)
         self.parameters[name] = s
         return s
 
@@ -251,12 +298,11 @@ class Session:
             c = str(parse_configuration(lv.configuration))
             if c not in model.configurations:
                 raise FinefitError(
-                    f"level {lv.id}: configuration {lv.configuration!r} is not in the session",
+                    f"level {lv.id}: configuration {quote(lv.configuration)} is not in the session",
                     lv.id,
                 )
             lv.configuration = c
-        if not math.isfinite(lv.energy):
-            raise FinefitError(f"level {lv.id}: energy must be finite", lv.id)
+        check_levels([lv], self.models, self.configurations)
         if labels and lv.label:
             lv.label = self.resolve_label(lv.label, lv.J, lv.parity, lv.id).text
         if labels and isinstance(lv.state, str):
@@ -314,22 +360,20 @@ class Session:
     ) -> str:
         """Add an observed level; returns its id."""
         if parity not in ("even", "odd"):
-            raise FinefitError(f"parity must be 'even' or 'odd', got {parity!r}", "parity")
-        try:
-            e = float(energy)
-        except (TypeError, ValueError):
-            raise FinefitError(f"energy must be a number, got {energy!r}", "energy") from None
-        if uncertainty is not None and not float(uncertainty) > 0:
-            raise FinefitError("uncertainty must be positive", "uncertainty")
+            raise FinefitError(f"parity must be 'even' or 'odd', got {quote(parity)}", "parity")
+        e = _number(energy, "energy")
+        if uncertainty is not None:
+            uncertainty = check_number(uncertainty, "uncertainty", positive=True)
         lid = id or self._new_id()
         if any(lv.id == lid for lv in self.levels):
-            raise FinefitError(f"level id {lid!r} is already used", lid)
+            raise FinefitError(f"level id {quote(lid)} is already used", lid)
         lv = ObservedLevel(
             id=lid, energy=e, J=parse_j(J), parity=parity, uncertainty=uncertainty,
             configuration=configuration, label=label, include=include, g=g, note=note,
             state=state,
         )
         self._check_level(lv)
+        check_levels(self.levels + [lv], self.models, self.configurations)
         self.levels.append(lv)
         return lid
 
@@ -337,7 +381,7 @@ class Session:
         for lv in self.levels:
             if lv.id == level_id:
                 return lv
-        raise FinefitError(f"no level with id {level_id!r}", level_id)
+        raise FinefitError(f"no level with id {quote(level_id)}", level_id)
 
     def update_level(self, level_id: str, **changes) -> ObservedLevel:
         """Change fields of an observed level (validated as a whole)."""
@@ -346,20 +390,23 @@ class Session:
                    "g", "note", "state"}
         bad = set(changes) - allowed
         if bad:
-            raise FinefitError(f"unknown level field {sorted(bad)[0]!r}", sorted(bad)[0])
+            raise FinefitError(f"unknown level field {quote(sorted(bad)[0])}", sorted(bad)[0])
         if "J" in changes:
             changes["J"] = parse_j(changes["J"])
         if "energy" in changes:
-            try:
-                changes["energy"] = float(changes["energy"])
-            except (TypeError, ValueError):
-                raise FinefitError(f"energy must be a number, got {changes['energy']!r}",
-                                   "energy") from None
-        if changes.get("uncertainty") is not None and not float(changes["uncertainty"]) > 0:
-            raise FinefitError("uncertainty must be positive", "uncertainty")
+            changes["energy"] = _number(changes["energy"], "energy")
+        if changes.get("uncertainty") is not None:
+            changes["uncertainty"] = check_number(changes["uncertainty"],
+                                                  f"level {quote(level_id)}: uncertainty",
+                                                  positive=True)
+        if changes.get("g") is not None:
+            changes["g"] = check_number(changes["g"], f"level {quote(level_id)}: g")
         new = replace(lv, **changes)
         self._check_level(new)
-        self.levels[self.levels.index(lv)] = new
+        i = self.levels.index(lv)
+        check_levels(self.levels[:i] + [new] + self.levels[i + 1:], self.models,
+                     self.configurations)
+        self.levels[i] = new
         return new
 
     def remove_level(self, level_id: str) -> ObservedLevel:
@@ -816,26 +863,34 @@ class Session:
     # ------------------------------------------------------------------ parameter sets
     def keep(self, result: FitResult, name: str, note: str = "") -> ParameterSet:
         """Store a fit as a named, timestamped parameter set."""
-        if not name or not name.strip():
-            raise FinefitError("a parameter set needs a name", "name")
-        if any(ps.name == name for ps in self.parameter_sets):
-            raise FinefitError(f"a parameter set named {name!r} exists already", name)
+        self.check_set_name(name)
         ps = ParameterSet(
             name=name, created=datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
             values=dict(result.values),
-            errors={k: v for k, v in result.errors.items()},
+            # an error beyond any physical size says "undetermined", as an infinite one does
+            errors={k: (v if abs(v) <= MAX_MAGNITUDE else math.inf)
+                    for k, v in result.errors.items()},
             sigma=result.sigma, n_levels=result.n_levels, n_free=result.n_free,
             included=list(result.included_ids), converged=result.converged, note=note,
         )
         self.parameter_sets.append(ps)
         return ps
 
+    def check_set_name(self, name: str) -> None:
+        """A new parameter set's name: non-empty, printable, not yet used."""
+        if not isinstance(name, str) or not name.strip():
+            raise FinefitError("a parameter set needs a name (it is empty)", "name")
+        check_text(name, "parameter set name")
+        if any(ps.name == name for ps in self.parameter_sets):
+            raise FinefitError(f"a parameter set named {quote(name)} exists already", name)
+
     def parameter_set(self, name: str) -> ParameterSet:
         for ps in self.parameter_sets:
             if ps.name == name:
                 return ps
         known = ", ".join(ps.name for ps in self.parameter_sets) or "none"
-        raise FinefitError(f"no parameter set named {name!r} (saved sets: {known})", name)
+        raise FinefitError(f"no parameter set named {quote(name)} (saved sets: "
+                           f"{quote(known, 400)[1:-1]})", name)
 
     def use_set(self, name: str) -> None:
         """Start from a saved parameter set's values."""

@@ -391,18 +391,22 @@ class FitProblem:
         floor = float(np.median(self.u)) if self.options.weighting == "uncertainty" else 1.0
         return max(sigma, floor, 1e-3)
 
-    def _global_attachment(self, v: np.ndarray) -> dict:
-        """The global assignment of every block at ``v`` (not applied)."""
+    def _blocks_at(self, v: np.ndarray):
+        """Per attached block at ``v``: key, its levels, model, J block and eigen-solution."""
         x = self.x_of(v)
-        scale = self._scale(v)
         lv_by_id = {lv.id: lv for lv in self.levels}
-        out = {}
         for key, att in self.attachments.items():
             parity, j2 = key
             model = self.models[parity]
             b = next(bb for bb in model.blocks if bb.J2 == j2)
             eig = model.eigen_block(b, self._model_x(x, parity))
-            lvs = [lv_by_id[i] for i in att.level_ids]
+            yield key, att, [lv_by_id[i] for i in att.level_ids], model, b, eig
+
+    def _global_attachment(self, v: np.ndarray) -> dict:
+        """The global assignment of every block at ``v`` (not applied)."""
+        scale = self._scale(v)
+        out = {}
+        for key, att, lvs, model, b, eig in self._blocks_at(v):
             new = global_attach_block(
                 lvs, eig.energies, eig.vectors, coupling_data(model), b.state_config,
                 model.configurations, att.eigen_index, scale,
@@ -493,6 +497,20 @@ class FitProblem:
                         new = idx.copy()
                         new[a], new[c] = idx[c], idx[a]
                         out.append((d, (ids[a], ids[c]), {key: new}))
+            # short cycles: three levels neighbouring in calculated energy pass their
+            # states round (both directions)
+            order = sorted(range(len(ids)), key=lambda k: energies[idx[k]])
+            for t in range(len(order) - 2):
+                a, b, c = order[t], order[t + 1], order[t + 2]
+                if rows[a] is None and rows[b] is None and rows[c] is None:
+                    continue
+                for perm in ((b, c, a), (c, a, b)):
+                    d = sum(part(rows[x], energies[idx[y]]) - now[x]
+                            for x, y in zip((a, b, c), perm, strict=True))
+                    if d < 0:
+                        new = idx.copy()
+                        new[a], new[b], new[c] = idx[perm[0]], idx[perm[1]], idx[perm[2]]
+                        out.append((d, (ids[a], ids[b], ids[c]), {key: new}))
             free = sorted(set(range(energies.size)) - set(int(i) for i in idx))
             for a in range(len(ids)):
                 if rows[a] is None:
@@ -517,10 +535,48 @@ class FitProblem:
         _, ok = label_compatibility(lvs, eig.vectors, coupling_data(model))
         return [lv.id for k, lv in enumerate(lvs) if lv.label and not ok[k, new_idx[k]]]
 
+    def _label_attachment(self, v: np.ndarray) -> dict:
+        """Every block attached the way the start does it (labels first) at ``v``."""
+        out = {}
+        for key, att, lvs, model, b, eig in self._blocks_at(v):
+            idx, _ = attach_block(lvs, eig.energies, eig.vectors, coupling_data(model),
+                                  b.state_config, model.configurations, self.options.assignment)
+            if not np.array_equal(idx, att.eigen_index):
+                out[key] = idx
+        return out
+
     def _exchange_search(self, v, converged, message):
-        """Keep exchanges (and moves to free states) that lower chi-square after a refit."""
+        """Keep exchanges (and moves to free states) that lower chi-square after a refit.
+
+        The first candidate re-attaches every level the way the start does (labels
+        first, by overlap in their scheme): a local minimum reached with levels led away
+        from their labels is left this way when the labelled attachment fits better.
+        """
         chi2 = self._chi2(v)
         proposed: set[tuple] = set()
+        by_label = self._label_attachment(v)
+        if by_label:
+            base = self._snapshot()
+            for key, idx in by_label.items():
+                att = self.attachments[key]
+                att.commit(idx, att.reference)
+            self._cache = {}
+            try:
+                v_new, conv_new, _ = self._minimize(v)
+                chi2_new = self._chi2(v_new)
+            except FinefitError:
+                conv_new, chi2_new = False, np.inf
+            if conv_new and chi2_new < chi2 * (1 - 1e-6) - 1e-12:
+                v_settled, conv_settled, msg_settled = self._fit_to_fixed_point(v_new)
+                if not conv_settled:
+                    converged, message = False, msg_settled
+                self.warnings.append(
+                    "re-attached the levels by their labels after a local minimum: "
+                    f"chi-square {chi2:.6g} -> {self._chi2(v_settled):.6g}"
+                )
+                v, chi2 = v_settled, self._chi2(v_settled)
+            else:
+                self._restore(base)
         for _pass in range(6):
             improved = False
             for _d, who, change in self._candidate_moves(v):
@@ -546,13 +602,20 @@ class FitProblem:
                     if bad:
                         sigma_after = self._sigma_of(v_new)
                         self._restore(base)
-                        self.suspected.append((*who, sigma_after) if len(who) == 2
-                                              else (who[0], "", sigma_after))
+                        if len(who) == 2:
+                            self.suspected.append((*who, sigma_after))
+                        elif len(who) == 1:
+                            self.suspected.append((who[0], "", sigma_after))
+                        else:  # a cycle: proposed as the exchanges it is made of
+                            self.suspected.append((who[0], who[1], sigma_after))
+                            self.suspected.append((who[1], who[2], sigma_after))
                         proposed.add(who)
                         continue
                     self.warnings.append(
                         ("exchanged the states of levels " + " and ".join(who))
-                        if len(who) == 2 else f"moved level {who[0]} to another state"
+                        if len(who) == 2
+                        else f"moved level {who[0]} to another state" if len(who) == 1
+                        else "passed the states of levels " + ", ".join(who) + " round"
                     )
                     self.warnings[-1] += (
                         f": chi-square {chi2:.6g} -> {chi2_new:.6g} after a refit"
@@ -704,6 +767,16 @@ class FitProblem:
                 + " (fix or link them)"
             )
         warnings.extend(getattr(self, "diagnoses", []))
+        explicit = np.array([lv.uncertainty is not None for lv in self.included])
+        if fitted and dof > 0 and explicit.sum() >= max(1, explicit.size // 2):
+            z = resid[explicit] / self.u[explicit]
+            ratio = math.sqrt(float(np.sum(z**2)) / max(int(explicit.sum()) - n_free, 1))
+            if ratio > 3.0:
+                warnings.append(
+                    f"the residuals are {ratio:.3g} times the levels' stated uncertainties: "
+                    "a wrong attachment, a missing interaction or a local minimum; try "
+                    "several starts (--starts)"
+                )
         warnings.extend(self._range_warnings(values, kinds, status))
         weak = self._weakly_determined(errors, values, status, undetermined_names)
         if weak:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field, replace
 
-from finefit.errors import FinefitError
+from finefit.errors import FinefitError, quote
 
 
 @dataclass
@@ -28,13 +28,13 @@ class ParameterSetting:
 
     def check(self, name: str) -> None:
         if not math.isfinite(self.value):
-            raise FinefitError(f"parameter {name!r}: value must be a finite number", name)
+            raise FinefitError(f"parameter {quote(name)}: value must be a finite number", name)
         if self.min is not None and self.max is not None and self.min >= self.max:
-            raise FinefitError(f"parameter {name!r}: min must be below max", name)
+            raise FinefitError(f"parameter {quote(name)}: min must be below max", name)
         if self.min is not None and self.value < self.min:
-            raise FinefitError(f"parameter {name!r}: value {self.value} is below min", name)
+            raise FinefitError(f"parameter {quote(name)}: value {self.value} is below min", name)
         if self.max is not None and self.value > self.max:
-            raise FinefitError(f"parameter {name!r}: value {self.value} is above max", name)
+            raise FinefitError(f"parameter {quote(name)}: value {self.value} is above max", name)
 
 
 @dataclass
@@ -76,12 +76,13 @@ class FitOptions:
     def check(self) -> None:
         if self.weighting not in ("none", "uncertainty"):
             raise FinefitError(
-                f"fit option weighting = {self.weighting!r}: use 'none' or 'uncertainty'",
+                f"fit option weighting = {quote(self.weighting)}: use 'none' or 'uncertainty'",
                 "weighting",
             )
         if self.assignment not in ("energy-order", "nearest"):
             raise FinefitError(
-                f"fit option assignment = {self.assignment!r}: use 'energy-order' or 'nearest'",
+                f"fit option assignment = {quote(self.assignment)}: use 'energy-order' or "
+                "'nearest'",
                 "assignment",
             )
         if self.max_iterations < 1:

@@ -37,6 +37,14 @@ from finefit.angular.operators import (
     splus_terms,
     subshell_casimir_terms,
 )
+from finefit.angular.threebody import (
+    D_SHELL_LABELS,
+    F_SHELL_LABELS,
+    SubshellOperator,
+    subshell_contiguous,
+    three_body,
+    three_body_terms,
+)
 from finefit.angular.wigner import clebsch_gordan2
 from finefit.errors import FinefitError
 from finefit.lazy import lazy_module
@@ -197,6 +205,7 @@ class EffectiveOperator:
     min_electrons: int
     one_body: tuple = ()
     column: int = -1  # weight column in the stacked two-body terms (-1: none)
+    column3: int = -1  # weight column in the stacked three-body terms (-1: none)
 
 
 @dataclass
@@ -345,6 +354,7 @@ class Basis:
         so = self.spin_orbitals
         ops: list[EffectiveOperator] = []
         parts = []
+        three_parts = []
         for s, (_, l) in enumerate(self.shells):
             occ = [info.occupancy[s] for info in self.configs]
             if not any(2 <= n <= 4 * l for n in occ):
@@ -358,7 +368,16 @@ class Basis:
                     one, two = subshell_casimir_terms(so, s, group)
                     parts.append(two)
                     ops.append(EffectiveOperator(s, name, name, 0, 2, tuple(one), len(parts) - 1))
+            if l in (2, 3) and any(3 <= n <= 4 * l - 1 for n in occ):
+                # three-electron scalars (Judd 1966): only where the subshell has 3 electrons
+                # and 3 holes somewhere, so the engine builds and applies them only there
+                names3 = list(F_SHELL_LABELS if l == 3 else D_SHELL_LABELS)
+                start = sum(p.terms.weights.shape[1] for p in three_parts)
+                three_parts.append(SubshellOperator(so, s, three_body_terms(so, s, names3)))
+                for j, nm in enumerate(names3):
+                    ops.append(EffectiveOperator(s, nm, "T", int(nm[1:]), 3, (), -1, start + j))
         self.effective_operators: list[EffectiveOperator] = ops
+        self._three_parts: list = three_parts
         # one sweep per block for the Coulomb and the effective two-body terms: they act on
         # (nearly) the same spin-orbital quadruples, so the stacked list costs about as
         # much as the Coulomb terms alone
@@ -369,16 +388,30 @@ class Basis:
             else self._coulomb_terms
         )
 
+    def _three_body_matrices(self, blk: DeterminantBlock) -> list:
+        """Block matrices of the three-electron operators (O (x) 1 where the subshell's
+        spin-orbitals are consecutive, else the general sweep over all terms)."""
+        out: list = []
+        for part in self._three_parts:
+            if subshell_contiguous(self.spin_orbitals, int(self.spin_orbitals.shell[
+                    part.orbitals[0]])):
+                out.extend(part.block_matrices(blk))
+            else:
+                out.extend(three_body(blk, part.terms))
+        return out
+
     def _effective_matrices(
-        self, V: np.ndarray, L: int, S2: int, two: list
+        self, V: np.ndarray, L: int, S2: int, two: list, three: list
     ) -> dict[tuple[int, str], np.ndarray]:
         """V^T O V for every effective operator in the block (M_L = L, 2M_S = 2S); ``two``
-        are the block matrices of the stacked effective two-body terms."""
+        and ``three`` are the block matrices of the stacked two- and three-body terms."""
         if not self.effective_operators:
             return {}
         out = {}
         for op in self.effective_operators:
             m = two[op.column] if op.column >= 0 else None
+            if op.column3 >= 0:
+                m = three[op.column3]
             if op.one_body:
                 ob = self.operator(("eff", op.shell, op.name), (L, S2), (L, S2), list(op.one_body))
                 m = ob if m is None else m + ob
@@ -447,6 +480,7 @@ class Basis:
                 if coul is None:
                     both = two_body(blk, self._block_terms)
                     coul, eff = both[: self._n_coulomb], both[self._n_coulomb :]
+                    eff3 = self._three_body_matrices(blk)
                 V, labels = self._label(info, V, L, S2, coul, pairing_cache)
                 vectors.append(V)
                 states.extend(labels)
@@ -459,7 +493,7 @@ class Basis:
             for info in self.configs:
                 for s in info.open_shells:
                     group.casimir_l[(info.index, s)] = self._casimir_l(Vall, L, S2, (s,))
-            group.effective = self._effective_matrices(Vall, L, S2, eff)
+            group.effective = self._effective_matrices(Vall, L, S2, eff, eff3)
             self.term_groups[(L, S2)] = group
             for i, st in enumerate(states):
                 self.ls_states.append(st)
@@ -489,21 +523,7 @@ class Basis:
         groups = [np.arange(n)]
         R = np.eye(n)
         for _, _, op in ops:
-            new_groups = []
-            for g in groups:
-                if g.size == 1:
-                    new_groups.append(g)
-                    continue
-                sub = R[:, g].T @ op @ R[:, g]
-                w, U = np.linalg.eigh((sub + sub.T) / 2)
-                R[:, g] = R[:, g] @ U
-                # cluster equal eigenvalues (they are quantised: differences >= 1e-3)
-                start = 0
-                for i in range(1, g.size + 1):
-                    if i == g.size or w[i] - w[i - 1] > 1e-6:
-                        new_groups.append(g[start:i])
-                        start = i
-            groups = new_groups
+            groups = split_degenerate(op, R, groups)
         # f shells: copies of a term with equal seniority are told apart by Racah's SO(7)
         # and G2 labels W and U (only built where such copies remain degenerate)
         if any(g.size > 1 for g in groups):
@@ -520,20 +540,7 @@ class Basis:
                     M = two_body(blk, two)[0] + one_body(blk, blk, one)
                     op = V.T @ (M @ V)
                     ops.append((kind, pos, op))
-                    new_groups = []
-                    for g in groups:
-                        if g.size == 1:
-                            new_groups.append(g)
-                            continue
-                        sub = R[:, g].T @ op @ R[:, g]
-                        w, U = np.linalg.eigh((sub + sub.T) / 2)
-                        R[:, g] = R[:, g] @ U
-                        start = 0
-                        for i in range(1, g.size + 1):
-                            if i == g.size or w[i] - w[i - 1] > 1e-6:
-                                new_groups.append(g[start:i])
-                                start = i
-                    groups = new_groups
+                    groups = split_degenerate(op, R, groups)
         # diagonal of R^T op R as one matrix product (a three-operand einsum is ~10x slower)
         qn = {(k, p): np.sum(R * (op @ R), axis=0) for k, p, op in ops}
         index_of = np.zeros(n, dtype=int)
@@ -682,6 +689,28 @@ class Basis:
     def integral_class_name(self, cls: IntegralClass) -> str:
         n = self.shell_names
         return f"R{cls.k}({n[cls.pair1[0]]}{n[cls.pair1[1]]};{n[cls.pair2[0]]}{n[cls.pair2[1]]})"
+
+
+def split_degenerate(op: np.ndarray, R: np.ndarray, groups: list[np.ndarray]) -> list[np.ndarray]:
+    """Diagonalise ``op`` inside each group of still-degenerate columns of ``R`` (in place).
+
+    Returns the finer groups: columns whose eigenvalues agree within 1e-6 (the operators
+    used here have quantised eigenvalues, differences >= 1e-3) stay together.
+    """
+    new_groups = []
+    for g in groups:
+        if g.size == 1:
+            new_groups.append(g)
+            continue
+        sub = R[:, g].T @ op @ R[:, g]
+        w, U = np.linalg.eigh((sub + sub.T) / 2)
+        R[:, g] = R[:, g] @ U
+        start = 0
+        for i in range(1, g.size + 1):
+            if i == g.size or w[i] - w[i - 1] > 1e-6:
+                new_groups.append(g[start:i])
+                start = i
+    return new_groups
 
 
 def _lookup(x: float, table: dict[tuple[int, ...], float], what: str) -> tuple[int, ...]:

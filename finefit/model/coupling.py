@@ -31,6 +31,7 @@ from finefit.model.basis import (
     _casimir_value2,
     _p_seniority,
     _seniority,
+    split_degenerate,
 )
 from finefit.model.solution import lande_g_ls
 from finefit.notation.jvalues import format_angular
@@ -94,20 +95,7 @@ def _sequential(ops: list[np.ndarray], n: int, tie: np.ndarray | None):
     R = np.eye(n)
     groups = [np.arange(n)]
     for op in ops:
-        new = []
-        for g in groups:
-            if g.size == 1:
-                new.append(g)
-                continue
-            sub = R[:, g].T @ op @ R[:, g]
-            w, U = np.linalg.eigh((sub + sub.T) / 2)
-            R[:, g] = R[:, g] @ U
-            start = 0
-            for i in range(1, g.size + 1):
-                if i == g.size or w[i] - w[i - 1] > 1e-6:
-                    new.append(g[start:i])
-                    start = i
-        groups = new
+        groups = split_degenerate(op, R, groups)
     index = np.zeros(n, dtype=int)
     for g in groups:
         if g.size > 1:

@@ -87,12 +87,15 @@ def lande_zeta(
 # 90, 3443, their "typical" set):  # from memory
 TYPICAL_F = {
     "alpha": 20.0, "beta": -600.0, "gamma": 1500.0,
-    "T2": 300.0, "T3": 40.0, "T4": 60.0, "T6": -300.0, "T7": 370.0, "T8": 320.0,
+    # T2 .. T8 of the published fits (300, 40, 60, -300, 370, 320) refer to Judd's own
+    # normalisation of the t_i, which finefit could not verify (angular/threebody.py uses
+    # its own scale): applied to finefit's operators they would be wrong by unknown
+    # factors, so the three-electron operators start at 0 (fixed)
     "M0": 2.5, "M2": 1.4, "M4": 0.78,  # M2 = 0.56 M0, M4 = 0.31 M0 (Marvin-integral ratios)
     "P2": 300.0, "P4": 225.0, "P6": 150.0,  # P4 = 0.75 P2, P6 = 0.50 P2
 }
 # d shells (iron-group free ions; orders of magnitude of published fits):  # from memory
-TYPICAL_D = {"alpha": 60.0, "beta": -500.0, "T": -2.0}
+TYPICAL_D = {"alpha": 60.0, "beta": -500.0}  # T1, T2 (finefit's scale): start at 0
 # Link groups of fixed ratios usual in f-shell fits (# common practice): the magnetic
 # M^k vary as one parameter, and so do the P^k.
 LINKED_RATIOS = {"M0": "M", "M2": "M", "M4": "M", "P2": "P", "P4": "P", "P6": "P"}

@@ -3,12 +3,15 @@ by configuration and J, and a predicted stick spectrum against observed lines.""
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
 
 import numpy as np
 
 from finefit.fitting.results import FitResult
 from finefit.notation.jvalues import format_j
+
+Writer = Callable[[Path, bytes], Path]
 
 
 def _pyplot():
@@ -20,7 +23,7 @@ def _pyplot():
     return plt
 
 
-def oc_figure(r: FitResult, path: str | Path) -> Path:
+def oc_figure(r: FitResult, path: str | Path, writer: Writer | None = None) -> Path:
     plt = _pyplot()
     fig, ax = plt.subplots(figsize=(7, 3.5))
     inc = [x for x in r.levels if x.included]
@@ -37,10 +40,10 @@ def oc_figure(r: FitResult, path: str | Path) -> Path:
     ax.set_ylabel("O $-$ C (cm$^{-1}$)")
     ax.legend(frameon=False, fontsize=8)
     fig.tight_layout()
-    return _save(fig, plt, path)
+    return _save(fig, plt, path, writer)
 
 
-def level_diagram_figure(r: FitResult, path: str | Path) -> Path:
+def level_diagram_figure(r: FitResult, path: str | Path, writer: Writer | None = None) -> Path:
     plt = _pyplot()
     keys = sorted({(x.configuration, x.J) for x in r.levels}, key=lambda k: (k[0], k[1]))
     fig, ax = plt.subplots(figsize=(max(4, 0.45 * len(keys) + 2), 5))
@@ -58,10 +61,11 @@ def level_diagram_figure(r: FitResult, path: str | Path) -> Path:
     ax.set_title("calculated (left, blue), observed (right, black), predicted (dotted)",
                  fontsize=8)
     fig.tight_layout()
-    return _save(fig, plt, path)
+    return _save(fig, plt, path, writer)
 
 
-def stick_spectrum_figure(lines, observed: np.ndarray | None, path: str | Path) -> Path:
+def stick_spectrum_figure(lines, observed: np.ndarray | None, path: str | Path,
+                          writer: Writer | None = None) -> Path:
     """Predicted lines as sticks of height gf against vacuum wavenumber; observed lines
     as ticks below the axis."""
     plt = _pyplot()
@@ -77,12 +81,21 @@ def stick_spectrum_figure(lines, observed: np.ndarray | None, path: str | Path) 
     ax.set_ylabel("gf")
     ax.legend(frameon=False, fontsize=8)
     fig.tight_layout()
-    return _save(fig, plt, path)
+    return _save(fig, plt, path, writer)
 
 
-def _save(fig, plt, path) -> Path:
+def _save(fig, plt, path, writer: Writer | None) -> Path:
+    """Render to memory, then write atomically (``writer`` decides whether it may)."""
+    import io
+
     p = Path(path)
-    p.parent.mkdir(parents=True, exist_ok=True)
-    fig.savefig(p, dpi=150)
-    plt.close(fig)
-    return p
+    buf = io.BytesIO()
+    try:
+        fig.savefig(buf, format=p.suffix.lstrip(".").lower() or "png", dpi=150)
+    finally:
+        plt.close(fig)
+    if writer is None:
+        from finefit.storage.atomic import atomic_write_bytes
+
+        return atomic_write_bytes(p, buf.getvalue(), backup=False)
+    return writer(p, buf.getvalue())

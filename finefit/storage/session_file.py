@@ -14,7 +14,7 @@ from typing import Any
 
 import tomli_w
 
-from finefit.errors import FinefitError
+from finefit.errors import FinefitError, quote
 from finefit.fitting.settings import FitOptions, ObservedLevel, ParameterSetting
 from finefit.notation.jvalues import format_j, parse_j
 from finefit.storage.level_sets import LevelSet, dump_level_sets, parse_level_sets
@@ -80,7 +80,7 @@ def _unknown(table: dict, allowed: tuple[str, ...], ctx: str, source: str) -> No
     for k in table:
         if k not in allowed:
             raise FinefitError(
-                f"{source}: unknown key '{k}' in {ctx}; allowed keys: {', '.join(allowed)}",
+                f"{source}: unknown key {quote(k)} in {ctx}; allowed keys: {', '.join(allowed)}",
                 k,
             )
 
@@ -94,12 +94,12 @@ def _num(table: dict, key: str, ctx: str, source: str, required: bool = False,
     v = table[key]
     if isinstance(v, bool) or not isinstance(v, int | float):
         raise FinefitError(
-            f"{source}: {_where(ctx, key)} must be a number, got {v!r}", key
+            f"{source}: {_where(ctx, key)} must be a number, got {quote(v)}", key
         )
     if not math.isfinite(v):
-        raise FinefitError(f"{source}: {_where(ctx, key)} must be finite, got {v!r}", key)
+        raise FinefitError(f"{source}: {_where(ctx, key)} must be finite, got {quote(v)}", key)
     if positive and not v > 0:
-        raise FinefitError(f"{source}: {_where(ctx, key)} must be positive, got {v!r}", key)
+        raise FinefitError(f"{source}: {_where(ctx, key)} must be positive, got {quote(v)}", key)
     return float(v)
 
 
@@ -110,7 +110,8 @@ def _int(table: dict, key: str, ctx: str, source: str, required: bool = False) -
         return None
     v = table[key]
     if isinstance(v, bool) or not isinstance(v, int):
-        raise FinefitError(f"{source}: {_where(ctx, key)} must be a whole number, got {v!r}", key)
+        raise FinefitError(
+            f"{source}: {_where(ctx, key)} must be a whole number, got {quote(v)}", key)
     return int(v)
 
 
@@ -121,7 +122,7 @@ def _str(table: dict, key: str, ctx: str, source: str, required: bool = False) -
         return None
     v = table[key]
     if not isinstance(v, str):
-        raise FinefitError(f"{source}: {_where(ctx, key)} must be text, got {v!r}", key)
+        raise FinefitError(f"{source}: {_where(ctx, key)} must be text, got {quote(v)}", key)
     return v
 
 
@@ -130,7 +131,8 @@ def _bool(table: dict, key: str, ctx: str, source: str, default: bool) -> bool:
         return default
     v = table[key]
     if not isinstance(v, bool):
-        raise FinefitError(f"{source}: {_where(ctx, key)} must be true or false, got {v!r}", key)
+        raise FinefitError(
+            f"{source}: {_where(ctx, key)} must be true or false, got {quote(v)}", key)
     return v
 
 
@@ -151,11 +153,15 @@ def parse_session(text: str, source: str = "session") -> SessionData:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise FinefitError(f"{source}: not valid TOML: {exc}", source) from None
+    except RecursionError:
+        raise FinefitError(f"{source}: not a session file: its tables or arrays are nested "
+                           "too deeply", source) from None
     _unknown(doc, TOP_KEYS, "the top level", source)
     fmt = doc.get("format", FORMAT)
     if fmt != FORMAT:
         raise FinefitError(
-            f"{source}: format {fmt!r} is not {FORMAT!r} (written by a newer finefit?)", "format"
+            f"{source}: format {quote(fmt)} is not {FORMAT!r} (written by a newer finefit?)",
+            "format"
         )
     ion_t = _table(doc, "ion", source, required=True)
     _unknown(ion_t, ION_KEYS, "[ion]", source)
@@ -193,7 +199,7 @@ def parse_session(text: str, source: str = "session") -> SessionData:
     params_t = _table(doc, "parameters", source)
     params: dict[str, ParameterSetting] = {}
     for name, entry in params_t.items():
-        ctx = f"[parameters.\"{name}\"]"
+        ctx = f"[parameters.{quote(name)}]"
         if isinstance(entry, int | float) and not isinstance(entry, bool):
             entry = {"value": entry}
         if not isinstance(entry, dict):
@@ -220,7 +226,7 @@ def parse_session(text: str, source: str = "session") -> SessionData:
         if not isinstance(entry, dict):
             raise FinefitError(f"{source}: level {i} must be a table", f"level {i}")
         lid = entry.get("id", f"L{i:03d}")
-        ctx = f"level {i} (id {lid!r})"
+        ctx = f"level {i} (id {quote(lid)})"
         if not isinstance(lid, str) or not lid.strip():
             raise FinefitError(f"{source}: level {i}: 'id' must be non-empty text", f"level {i}")
         _unknown(entry, LEVEL_KEYS, ctx, source)
@@ -232,8 +238,8 @@ def parse_session(text: str, source: str = "session") -> SessionData:
             raise FinefitError(f"{source}: {exc}", lid) from None
         parity = _str(entry, "parity", ctx, source, required=True)
         if parity not in ("even", "odd"):
-            raise FinefitError(f"{source}: {ctx} parity must be 'even' or 'odd', got {parity!r}",
-                               lid)
+            raise FinefitError(
+                f"{source}: {ctx} parity must be 'even' or 'odd', got {quote(parity)}", lid)
         state = entry.get("state")
         if state is not None and (isinstance(state, bool) or not isinstance(state, int | str)):
             raise FinefitError(f"{source}: {ctx} state must be a whole number or a label", lid)

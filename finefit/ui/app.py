@@ -22,16 +22,17 @@ from textual.screen import ModalScreen
 from textual.widgets import DataTable, Footer, Header, Static, TabbedContent, TabPane
 from textual.worker import get_current_worker
 
-from finefit.errors import FinefitError
+from finefit.errors import FinefitError, quote
 from finefit.fitting.fit import FitCancelled
 from finefit.fitting.results import FitResult
+from finefit.fitting.validation import parse_number
 from finefit.notation.jvalues import format_j
 from finefit.session import Session
 from finefit.threads import engine_threads
 from finefit.ui import pictures
 from finefit.ui.commands import COMMANDS
 from finefit.ui.screens import ChoiceScreen, FormScreen, HelpScreen, PickScreen
-from finefit.workspace import Workspace
+from finefit.workspace import FileChangedError, Recovery, Workspace
 
 SORTS = ("energy", "|O-C|", "id", "J")
 
@@ -52,10 +53,12 @@ class WorkspaceApp(App):
     TITLE = "finefit"
     BINDINGS = _bindings()
 
-    def __init__(self, workspace: Workspace, offer_recovery: bool = False) -> None:
+    def __init__(self, workspace: Workspace, offer_recovery: bool = False,
+                 recovery: Recovery | None = None) -> None:
         super().__init__()
         self.ws = workspace
-        self.offer_recovery = offer_recovery
+        self.offer_recovery = offer_recovery or recovery is not None
+        self.recovery = recovery
         self.result: FitResult | None = None
         self.previous_sigma: float | None = None
         self.fit_running = False
@@ -150,7 +153,23 @@ class WorkspaceApp(App):
         self._apply_detail_visibility()
         self.refresh_all()
         lt.focus()
-        if self.offer_recovery:
+        rec = self.recovery
+        if rec is not None and rec.file_changed:
+            lines = ["Unsaved edits from an earlier session were found in the autosave "
+                     "journal, and the file has changed since they started."]
+            if rec.edits:
+                lines += ["", "Your unsaved edits:"] + [f"  {x}" for x in rec.edits]
+            if rec.outside:
+                lines += ["", "Changed in the file since:"] + [f"  {x}" for x in rec.outside]
+            if rec.file_error:
+                lines += ["", f"The file cannot be read now: {rec.file_error}"]
+            self.push_screen(
+                ChoiceScreen("\n".join(lines),
+                             [("j", "keep my edits"), ("f", "keep the file"),
+                              ("b", "keep both (merge)")]),
+                self._recovery_answer,
+            )
+        elif self.offer_recovery:
             self.push_screen(
                 ChoiceScreen(
                     "Unsaved changes from an earlier session were found in the autosave "
@@ -164,12 +183,25 @@ class WorkspaceApp(App):
 
     def _recovery_answer(self, answer: str | None) -> None:
         path = self.ws.session.path
-        if answer == "r" and path is not None:
-            self.ws = Workspace.recover(path)
-            self.message = "recovered the unsaved changes from the journal (not yet saved)"
-        else:
+        rec = self.recovery or (Workspace.pending_recovery(path) if path else None)
+        choice = {"r": "journal", "j": "journal", "f": "file", "b": "both"}.get(answer or "")
+        if rec is not None and choice is not None:
+            try:
+                self.ws, self.message = rec.keep(choice)
+            except FinefitError as exc:  # e.g. the two versions cannot be merged
+                self.notify(str(exc), title="not recovered", severity="error")
+                self.push_screen(ChoiceScreen(str(exc), [("j", "keep my edits"),
+                                                         ("f", "keep the file")]),
+                                 self._recovery_answer)
+                return
+        elif rec is not None and answer == "d":
             self.ws.discard_journal()
             self.message = "discarded the autosave journal"
+        elif rec is not None:  # dismissed: the journal is kept as a visible file
+            copy_path = rec.keep_journal_copy()
+            self.ws.discard_journal()
+            self.message = f"the journal's edits are kept in {copy_path.name}"
+        self.recovery = None
         self.refresh_all()
         self.schedule_fit()
 
@@ -600,6 +632,8 @@ class WorkspaceApp(App):
             self.update_status()
             return False
         self.message = description
+        if self.ws.journal_error:
+            self.notify(self.ws.journal_error, title="not autosaved", severity="warning")
         # the tables are redrawn once, when the new fit lands (redrawing a large table
         # costs as much as the fit itself); if the session cannot be fitted, redraw now
         self.schedule_fit()
@@ -677,11 +711,11 @@ class WorkspaceApp(App):
             if values is None:
                 return
             try:
-                energy = float(values["energy"])
-                unc = float(values["uncertainty"]) if values["uncertainty"].strip() else None
-            except ValueError:
-                self.notify(f"{values['energy']!r} / {values['uncertainty']!r}: energy and "
-                            "uncertainty must be numbers", title="not changed", severity="error")
+                energy = parse_number(values["energy"], "energy")
+                unc = parse_number(values["uncertainty"], "uncertainty", positive=True) \
+                    if values["uncertainty"].strip() else None
+            except ValueError as exc:  # FinefitError names the field
+                self.notify(str(exc), title="not changed", severity="error")
                 return
             label = values["label"].strip() or None
             self.apply_edit(f"edited {lid}", lambda s: s.update_level(
@@ -702,12 +736,11 @@ class WorkspaceApp(App):
             if values is None:
                 return
             try:
-                value = float(values["value"])
-                lo = float(values["min"]) if values["min"].strip() else None
-                hi = float(values["max"]) if values["max"].strip() else None
-            except ValueError:
-                self.notify("value and bounds must be numbers", title="not changed",
-                            severity="error")
+                value = parse_number(values["value"], "value")
+                lo = parse_number(values["min"], "min") if values["min"].strip() else None
+                hi = parse_number(values["max"], "max") if values["max"].strip() else None
+            except ValueError as exc:  # FinefitError names the field
+                self.notify(str(exc), title="not changed", severity="error")
                 return
             self.apply_edit(f"edited {name}",
                             lambda s: s.set_parameter(name, value, min=lo, max=hi))
@@ -728,10 +761,9 @@ class WorkspaceApp(App):
                 return
             unc = values["uncertainty"].strip()
             try:
-                unc_v = float(unc) if unc else None
-            except ValueError:
-                self.notify(f"uncertainty {unc!r} is not a number", severity="error",
-                            title="not added")
+                unc_v = parse_number(unc, "uncertainty", positive=True) if unc else None
+            except ValueError as exc:  # FinefitError names the field
+                self.notify(str(exc), severity="error", title="not added")
                 return
             self.apply_edit("added a level", lambda s: s.add_level(
                 energy=values["energy"], J=values["J"], parity=values["parity"].strip(),
@@ -809,11 +841,38 @@ class WorkspaceApp(App):
             return
         try:
             p = self.ws.save()
+        except FileChangedError as exc:
+            self._ask_changed_on_disk(exc.recovery)
+            return
         except (FinefitError, OSError) as exc:
             self.notify(str(exc), title="not saved", severity="error")
             return
         self.message = f"saved {p.name}"
         self.update_status()
+
+    def _ask_changed_on_disk(self, rec: Recovery) -> None:
+        """The file changed since it was read: overwrite it, merge its changes, or cancel."""
+        lines = ["The file was changed on disk since the workspace read it."]
+        if rec.outside:
+            lines += ["", "Changed in the file:"] + [f"  {x}" for x in rec.outside]
+
+        def answer(a: str | None) -> None:
+            try:
+                if a == "b":
+                    self.ws, self.message = rec.keep("both")
+                elif a != "o":
+                    return
+                p = self.ws.save(overwrite=True)
+            except (FinefitError, OSError) as exc:
+                self.notify(str(exc), title="not saved", severity="error")
+                return
+            self.message = f"saved {p.name}" + (" (with the file's changes)" if a == "b" else "")
+            self.refresh_all()
+            self.schedule_fit()
+
+        self.push_screen(ChoiceScreen("\n".join(lines),
+                                      [("b", "merge them, then save"), ("o", "overwrite"),
+                                       ("c", "cancel")]), answer)
 
     def action_keep_set(self) -> None:
         if self._modal_open() or self.result is None:
@@ -972,6 +1031,9 @@ class WorkspaceApp(App):
             if a == "s":
                 try:
                     self.ws.save()
+                except FileChangedError as exc:
+                    self._ask_changed_on_disk(exc.recovery)
+                    return
                 except (FinefitError, OSError) as exc:
                     self.notify(str(exc), title="not saved", severity="error")
                     return
@@ -993,12 +1055,13 @@ class WorkspaceApp(App):
 def make_app(path: str | Path) -> WorkspaceApp:
     """The workspace for one session file (used by the command line and the tests)."""
     p = Path(path)
-    pending = Workspace.pending_journal(p)
+    pending = Workspace.pending_recovery(p)
     if not p.exists() and pending is None:
-        raise FinefitError(f"session file {str(p)!r} does not exist", str(p))
-    if p.exists():
+        raise FinefitError(f"session file {quote(str(p))} does not exist", str(p))
+    if p.exists() and (pending is None or pending.file_error is None):
         ws = Workspace(Session.load(p))
-    else:
-        ws = Workspace.recover(p)
-        pending = None
-    return WorkspaceApp(ws, offer_recovery=pending is not None)
+    elif pending is not None:  # the file is missing or unreadable: start from the journal
+        ws, _ = pending.keep("journal")
+        if not p.exists():
+            pending = None
+    return WorkspaceApp(ws, recovery=pending)

@@ -174,3 +174,23 @@ def test_diagnosis_in_json(tmp_path, capsys):
     assert {"suspected_swaps", "next_steps", "fixed_point", "undetermined"} <= set(data)
     assert any(set(s["levels"]) == {"L019", "L023"} for s in data["suspected_swaps"])
 
+
+
+def test_short_cycles_are_among_the_candidate_moves():
+    # three levels of one J whose states were passed round: at the true values the
+    # screening proposes the cycle that undoes it (invented levels, no noise)
+    prob, levels = mixed_problem(noise=0.0)
+    key = max(prob.attachments, key=lambda k: len(prob.attachments[k].level_ids))
+    att = prob.attachments[key]
+    assert len(att.level_ids) >= 3
+    idx = att.eigen_index.copy()
+    a, b, c = 0, 1, 2
+    idx[a], idx[b], idx[c] = att.eigen_index[b], att.eigen_index[c], att.eigen_index[a]
+    att.commit(idx, att.reference)
+    prob._cache = {}
+    moves = prob._candidate_moves(prob.v_start, limit=50)
+    cycles = [who for _, who, _ in moves if len(who) == 3]
+    assert any(set(who) == {att.level_ids[a], att.level_ids[b], att.level_ids[c]}
+               for who in cycles)
+    r = prob.fit()
+    assert r.converged and r.sigma < 1e-3

@@ -143,3 +143,43 @@ def test_not_a_compilation_needs_the_columns(tmp_path):
     s = finefit.Session.new(["3d2"], Z=22, charge=2)
     with pytest.raises(FinefitError, match="compilations' layout"):
         s.import_levels(bad)
+
+
+def test_column_mapping_lists_every_bad_row_and_can_skip_them(tmp_path, capsys):
+    table = tmp_path / "mine.csv"
+    table.write_text(
+        "E,J,configuration,label\n"
+        "0.0,9/2,3d6 4s,3d6(5D)4s 6D\n"
+        "abc,7/2,3d6 4s,\n"
+        "415.9,7/3,3d6 4s,\n"
+        "668.0,5/2,3d6 4s,\n"
+    )
+    session = tmp_path / "s.toml"
+    assert main(["new", str(session), "-c", "3d6 4s", "--Z", "26", "--charge", "1"]) == 0
+    before = session.read_text()
+    code = main(["import", str(session), str(table), "--columns", "energy=E,J=J",
+                 "--parity", "even"])
+    err = capsys.readouterr().err
+    assert code == 2 and "line 3" in err and "line 4" in err and "2 bad row" in err
+    assert session.read_text() == before  # nothing imported
+    code = main(["import", str(session), str(table), "--columns", "energy=E,J=J",
+                 "--parity", "even", "--skip-bad"])
+    out = capsys.readouterr().out
+    assert code == 0 and "imported 2 levels" in out and "line 3" in out
+    # the configuration column mapped automatically can be switched off
+    code = main(["import", str(session), str(table), "--columns",
+                 "energy=E,J=J,configuration=,label=", "--parity", "even", "--skip-bad",
+                 "--replace"])
+    assert code == 0
+    s = finefit.load(session)
+    assert all(lv.configuration is None and lv.label is None for lv in s.levels)
+
+
+def test_a_huge_csv_field_is_bad_input(tmp_path, capsys):
+    table = tmp_path / "big.csv"
+    table.write_text('energy,J,parity\n0,"' + "4" * 2_000_000 + '",even\n')
+    session = tmp_path / "s.toml"
+    assert main(["new", str(session), "-c", "3d6 4s", "--Z", "26", "--charge", "1"]) == 0
+    assert main(["import", str(session), str(table)]) == 2
+    err = capsys.readouterr().err
+    assert "line 2" in err and len(err) < 1000

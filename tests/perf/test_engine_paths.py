@@ -123,7 +123,7 @@ def test_size_guard_refuses_with_the_numbers(monkeypatch, tmp_path, capsys):
     monkeypatch.delenv("FINEFIT_MEMORY_LIMIT_GB", raising=False)
     with pytest.raises(FinefitError, match=r"864864 determinants.*GiB"):
         Model(["3d5 4f7"])
-    assert main(["new", str(tmp_path / "x.toml"), "-c", "3d5 4f7", "--Z", "64"]) == 2
+    assert main(["new", str(tmp_path / "x.toml"), "-c", "3d5 4f7", "--Z", "48"]) == 2
     err = capsys.readouterr().err
     assert "too large" in err and "FINEFIT_MEMORY_LIMIT_GB" in err
     assert not (tmp_path / "x.toml").exists()

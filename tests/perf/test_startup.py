@@ -60,22 +60,3 @@ def test_public_names_resolve_on_first_use():
         assert "no_such_name" in str(exc)
     else:
         raise AssertionError("unknown attribute did not raise")
-
-
-def test_no_private_imports_across_packages():
-    # project rule (DEVELOPERS.md, layers): no underscore names imported from another
-    # package of finefit
-    import ast
-
-    bad = []
-    for path in (ROOT / "finefit").rglob("*.py"):
-        tree = ast.parse(path.read_text())
-        pkg = path.relative_to(ROOT).parts[1] if len(path.relative_to(ROOT).parts) > 2 else ""
-        for node in ast.walk(tree):
-            if isinstance(node, ast.ImportFrom) and node.module and \
-                    node.module.startswith("finefit."):
-                other = node.module.split(".")[1]
-                for alias in node.names:
-                    if alias.name.startswith("_") and other != pkg:
-                        bad.append(f"{path.name}: {node.module}.{alias.name}")
-    assert bad == []

@@ -37,8 +37,8 @@ def test_publish_command(tmp_path):
     shutil.copy(SAMPLE, p)
     out = tmp_path / "tables"
     assert main(["publish", str(p), str(out), "--fit"]) == 0
-    assert sorted(x.name for x in out.iterdir()) == ["levels.csv", "levels.tex",
-                                                    "parameters.csv", "parameters.tex"]
+    visible = sorted(x.name for x in out.iterdir() if not x.name.startswith("."))
+    assert visible == ["levels.csv", "levels.tex", "parameters.csv", "parameters.tex"]
 
 
 def test_figures_command(tmp_path):

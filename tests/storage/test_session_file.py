@@ -101,7 +101,7 @@ def test_crash_during_save_leaves_previous_file(good_file, monkeypatch):
         raise OSError("simulated power cut")
 
     monkeypatch.setattr(atomic.os, "replace", boom)
-    with pytest.raises(OSError):
+    with pytest.raises(FinefitError, match="simulated power cut"):
         s.save()
     assert good_file.read_text() == GOOD
     assert load(good_file).parameters["2p2: Eav"].value == 4800.0
@@ -118,7 +118,7 @@ def test_crash_while_writing_leaves_previous_file(good_file, monkeypatch):
         raise OSError("disk full")
 
     monkeypatch.setattr(atomic.os, "fsync", boom)
-    with pytest.raises(OSError):
+    with pytest.raises(FinefitError, match="disk full"):
         s.save()
     monkeypatch.setattr(atomic.os, "fsync", real_fsync)
     assert good_file.read_text() == GOOD
