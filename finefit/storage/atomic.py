@@ -15,7 +15,6 @@ from __future__ import annotations
 import errno
 import os
 import re
-import secrets
 from pathlib import Path
 
 from finefit.errors import FinefitError, quote_path
@@ -176,7 +175,7 @@ class _Temp:
 
     def _write_named(self) -> str:
         while True:
-            name = os.path.join(self.folder, f"{self.prefix}{secrets.token_hex(6)}.tmp")
+            name = os.path.join(self.folder, f"{self.prefix}{os.urandom(6).hex()}.tmp")
             try:
                 fd = os.open(name, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
                 break
@@ -199,7 +198,7 @@ class _Temp:
         dir_fd = os.open(self.folder, os.O_RDONLY)
         try:
             for _ in range(20):
-                base = f"{self.prefix}{secrets.token_hex(6)}.tmp"
+                base = f"{self.prefix}{os.urandom(6).hex()}.tmp"
                 try:
                     # with folder descriptors os.link calls linkat(AT_SYMLINK_FOLLOW),
                     # which names the unnamed file through /proc (plain link() would not)

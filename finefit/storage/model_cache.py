@@ -22,7 +22,6 @@ from __future__ import annotations
 
 import json
 import os
-import tempfile
 import zipfile
 import zlib
 from collections.abc import Mapping
@@ -171,6 +170,8 @@ def save_model_arrays(
     data = _pack(data)
     data["cache.key"] = np.array(cache_key(configurations))
     data["cache.checksum"] = np.array(checksum(data))
+    import tempfile  # only writers need it
+
     tmp = None
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
