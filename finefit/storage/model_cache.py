@@ -65,7 +65,8 @@ def engine_fingerprint() -> str:
             data = str(path.relative_to(root)).encode() + b"\0" + path.read_bytes()
             crc = zlib.crc32(data, crc)
             size += len(data)
-    return f"{crc:08x}-{size}"
+    # no sources (a byte-code-only install): no fingerprint, and so no cache
+    return f"{crc:08x}-{size}" if size else ""
 
 
 def cache_key(configurations: tuple[str, ...] | list[str]) -> str:
@@ -80,7 +81,7 @@ def cache_key(configurations: tuple[str, ...] | list[str]) -> str:
 
 def cache_path(configurations: tuple[str, ...] | list[str]) -> Path | None:
     folder = cache_dir()
-    if folder is None:
+    if folder is None or not engine_fingerprint():
         return None
     name = f"{zlib.crc32(cache_key(configurations).encode()):08x}"
     text = "_".join(configurations)

@@ -12,6 +12,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from finefit.errors import FinefitError
 from finefit.model.hamiltonian import Model
 from finefit.model.serial import model_from_arrays, model_to_arrays
 from finefit.session import Session, model_for
@@ -240,4 +241,21 @@ def test_entries_above_the_size_limit_are_not_written(cache, monkeypatch):
     monkeypatch.setattr(model_cache, "MAX_ENTRY_BYTES", 1000)
     m = model_for(("3d2",))
     assert m.parameters and model_cache.load_model_arrays(("3d2",)) is None
+    assert not cache.exists() or not list(cache.glob("*.npz"))
+
+
+def test_stored_states_that_differ_from_the_rebuilt_basis_are_refused():
+    arrays = model_to_arrays(Model(["3d2", "3d 4s"]))
+    meta = json.loads(str(arrays["meta"][()]))
+    meta["ls_states"][0], meta["ls_states"][1] = meta["ls_states"][1], meta["ls_states"][0]
+    arrays["meta"] = np.array(json.dumps(meta))
+    stored = model_from_arrays(arrays)
+    with pytest.raises(FinefitError, match="does not match"):
+        stored.basis.full()
+
+
+def test_no_cache_without_engine_sources(cache, monkeypatch):
+    monkeypatch.setattr(model_cache, "engine_fingerprint", lambda: "")
+    assert model_cache.cache_path(("2p2",)) is None
+    assert model_for(("2p2",)).parameters
     assert not cache.exists() or not list(cache.glob("*.npz"))
