@@ -188,7 +188,7 @@ def main() -> int:
         if not args.skip_large:
             print(f"\n== large sets ({load()}) ==")
             big = tmp / "big.toml"
-            t_new = wall(finefit("new", str(big), "-c", "4f6 5d", "--Z", "63", "--charge", "1",
+            t_new = wall(finefit("new", str(big), "-c", "4f6 5d", "--Z", "63", "--charge", "2",
                                  "--force"), 1)
             t_lev = wall(finefit("levels", str(big)), 2)
             build, labels = in_process(["4f6 5d"])
