@@ -1,13 +1,16 @@
 """Shared test settings: property tests are derandomised under CI so that a run is
 reproducible; locally they explore new examples each time."""
 
+import atexit
 import os
+import shutil
 import tempfile
 
 from hypothesis import settings
 
 # the persistent model cache of the suite: a fresh folder per run (never the user's)
 os.environ["FINEFIT_CACHE_DIR"] = tempfile.mkdtemp(prefix="finefit-test-cache-")
+atexit.register(shutil.rmtree, os.environ["FINEFIT_CACHE_DIR"], ignore_errors=True)
 
 settings.register_profile("ci", derandomize=True, print_blob=True)
 if os.environ.get("CI"):
