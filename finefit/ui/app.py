@@ -195,11 +195,8 @@ class WorkspaceApp(App):
         self.fit_landed.append(time.perf_counter())
         new = [w for w in result.warnings if w not in self.last_warnings]
         self.last_warnings = list(result.warnings)
-        if result.suspected_swaps or new:
-            n = views.diagnosis_count(result)
-            if n:
-                self.notify(f"{n} thing(s) to check after this fit: 7 lists them",
-                            title="check", timeout=4)
+        if new and result.suspected_swaps:
+            self.notify(f"{len(result.suspected_swaps)} suspected exchange(s): 7", timeout=4)
         self.update_status()
         self.redraw_views()
 
@@ -308,13 +305,7 @@ class WorkspaceApp(App):
             view.shown()
 
     def on_resize(self, event) -> None:
-        view = self._view(self.current_tab())
-        if view is not None:
-            view.redraw()  # the wide or narrow layout follows the terminal
-        for other in self.query(views.View):
-            if other is not view:
-                other.stale = True
-        self.update_status()
+        self.call_after_refresh(self.update_status)  # the views follow on their own resize
 
     def _view(self, tab: str):
         try:

@@ -220,9 +220,15 @@ def _heat(rho: float, diagonal: bool) -> str:
 
 
 def composition_bars(components: list[tuple[str, float]], width: int) -> Text:
-    """Horizontal bars of percentage composition."""
+    """Horizontal bars of percentage composition. A label that names two different basis
+    states (jj labels do not carry every intermediate coupling) is numbered [1], [2] so
+    the two components are not read as one."""
     out = Text()
     barw = max(width - 8, 6)
+    counts: dict[str, int] = {}
+    for label, _ in components:
+        counts[label] = counts.get(label, 0) + 1
+    seen: dict[str, int] = {}
     for label, frac in components:
         n = int(round(frac * barw))
         out.append(f"{100 * frac:5.1f}% ")
@@ -230,5 +236,8 @@ def composition_bars(components: list[tuple[str, float]], width: int) -> Text:
         out.append("░" * (barw - n), style="dim")
         out.append("\n   ")
         out.append(label)
+        if counts[label] > 1:
+            seen[label] = seen.get(label, 0) + 1
+            out.append(f" [{seen[label]}]")
         out.append("\n")
     return out

@@ -75,7 +75,7 @@ class FormScreen(ModalScreen[dict | None]):
         self.note = note
 
     def compose(self) -> ComposeResult:
-        with VerticalScroll(id="form"):
+        with VerticalScroll(id="form", can_focus=False):
             yield Label(Text(self.form_title, style="bold"))
             if self.note:
                 yield Static(Text(self.note), classes="note")
@@ -86,6 +86,9 @@ class FormScreen(ModalScreen[dict | None]):
             yield Static("", id="form-error", markup=False)
             yield Static(Text("Enter: accept   Tab/↓: next field   Escape: cancel",
                               style="dim"))
+
+    def on_mount(self) -> None:
+        self.query(Input).first().focus()
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
         event.stop()

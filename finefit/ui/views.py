@@ -38,6 +38,12 @@ class View(Container):
         self.stale = False
         self.draw()
 
+    def on_resize(self, event) -> None:
+        # the layout follows the terminal (wide columns, pane beside or below the table)
+        self.stale = True
+        if self.app.current_tab() == self.TAB:
+            self.redraw()
+
     def shown(self) -> None:
         if self.stale:
             self.redraw()
@@ -182,6 +188,8 @@ class LevelsView(View):
             Column("conf", titles["conf"], width("conf", titles["conf"]), required=False),
             Column("par", titles["par"], width("par", titles["par"]), required=False),
         ]
+        # a column with nothing in it (no observed g, no fit yet) takes no room
+        columns = [c for c in columns if c.required or any(d[c.key][0] for d in data)]
         shown = fit_columns(columns, self.table_width())
         right = {"J", "eobs", "ecalc", "oc", "pur", "gc", "go"}
         with self.app.batch_update():
