@@ -81,7 +81,7 @@ class FormScreen(ModalScreen[dict | None]):
                 yield Static(Text(self.note), classes="note")
             for key, label, initial in self.fields:
                 with Horizontal(classes="field"):
-                    yield Label(Text(label), classes="field-label")
+                    yield Label(Text(label + ":"), classes="field-label")
                     yield Input(value=initial, id=f"f-{key}", compact=True)
             yield Static("", id="form-error", markup=False)
             yield Static(Text("Enter: accept   Tab/↓: next field   Escape: cancel",

@@ -186,8 +186,7 @@ class LevelsView(View):
                    shrink_to=16),
             Column("go", titles["go"], width("go", titles["go"]), required=False),
             Column("conf", titles["conf"], width("conf", titles["conf"]), required=False),
-            Column("par", titles["par"], width("par", titles["par"]), required=False),
-        ]
+        ]  # parity is the ° on J (and in the detail pane)
         # a column with nothing in it (no observed g, no fit yet) takes no room
         columns = [c for c in columns if c.required or any(d[c.key][0] for d in data)]
         shown = fit_columns(columns, self.table_width())
