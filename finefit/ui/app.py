@@ -617,12 +617,20 @@ class WorkspaceApp(App):
     # ------------------------------------------------------------------ actions: diagnosis
     def action_apply_swap(self) -> None:
         r = self.result
-        if r is None or not r.suspected_swaps:
-            self.notify("no suspected exchange in this fit")
+        if r is None:
             return
         key = self.query_one(views.DiagView).selected() or ""
-        i = int(key.split(":")[1]) if key.startswith("swap:") else 0
-        a, b, _ = r.suspected_swaps[i]
+        if not key.startswith(("swap:", "pair:")):
+            pairs = views.exchange_candidates(r)
+            key = f"pair:{pairs[0][0]}:{pairs[0][1]}" if pairs else (
+                "swap:0" if r.suspected_swaps else "")
+        if not key:
+            self.notify("no suspected exchange in this fit")
+            return
+        if key.startswith("pair:"):
+            _, a, b = key.split(":")
+        else:
+            a, b, _ = r.suspected_swaps[int(key.split(":")[1])]
         if not b:  # a move of one level: choose its state by hand
             self.select_level(a)
             self.query_one(TabbedContent).active = "levels"

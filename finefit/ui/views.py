@@ -523,7 +523,7 @@ class DiagView(View):
         for key, kind, text in rows:
             table.add_row(Text(kind, style="bold"), Text(text), key=key,
                           height=None)  # long texts wrap in their cell
-        n_swaps = len(r.suspected_swaps)
+        n_swaps = len(r.suspected_swaps) + len(exchange_candidates(r))
         note.update(Text(
             (f"{n_swaps} suspected exchange(s): select one and press s to apply it "
              "(undoable). " if n_swaps else "") +
@@ -533,9 +533,33 @@ class DiagView(View):
             table.move_cursor(row=min(keep, table.row_count - 1))
 
 
+def exchange_candidates(r) -> list[tuple[str, str, float]]:
+    """Pairs of included levels of one J and parity, both beyond 3 sigma, where each
+    observed energy lies near the other's calculated one (the classic pair of exchanged
+    labels); with the larger |O-C| the exchange would leave. Not already proposed by the
+    fit."""
+    if not r.sigma:
+        return []
+    proposed = {frozenset((a, b)) for a, b, _ in r.suspected_swaps}
+    bad = [row for row in r.levels if row.included and abs(row.residual) > 3 * r.sigma]
+    out = []
+    for i, a in enumerate(bad):
+        for b in bad[i + 1:]:
+            if (a.parity, a.J) != (b.parity, b.J) or frozenset((a.id, b.id)) in proposed:
+                continue
+            after = max(abs(a.energy_obs - b.energy_calc), abs(b.energy_obs - a.energy_calc))
+            if after < min(abs(a.residual), abs(b.residual)) / 3:
+                out.append((a.id, b.id, after))
+    return out
+
+
 def diagnosis_rows(r) -> list[tuple[str, str, str]]:
     """(row key, kind, text) of everything the diagnosis view lists."""
     rows = []
+    for a, b, after in exchange_candidates(r):
+        rows.append((f"pair:{a}:{b}", "exchange?", f"{a} and {b} (J = {format_j(r.level(a).J)}) "
+                     f"are far off in opposite directions; exchanged, each would be within "
+                     f"{after:.3g} cm-1 of its state: s exchanges them (states and labels)"))
     for i, (a, b, sg) in enumerate(r.suspected_swaps):
         after = "—" if sg is None else f"{sg:.4g}"
         what = (f"exchange {a} and {b}: sigma {after} after refitting, against a label"
@@ -564,5 +588,6 @@ def diagnosis_count(r) -> int:
     """Items that need the analyst (exchanges, mismatches, undetermined, convergence)."""
     if r is None:
         return 0
-    return (len(r.suspected_swaps) + sum(row.label_mismatch for row in r.levels)
+    return (len(r.suspected_swaps) + len(exchange_candidates(r))
+            + sum(row.label_mismatch for row in r.levels)
             + len(r.undetermined) + int(r.fitted and not r.converged) + int(not r.fixed_point))

@@ -339,3 +339,20 @@ async def test_writing_keeps_the_fit_on_screen(neon):
         await pilot.pause()
         assert isinstance(app.screen, TableScreen)
         assert app.screen.query_one(DataTable).row_count == len(app.result.values)
+
+
+async def test_diagnosis_proposes_the_exchange_and_s_applies_it(iron):
+    app = make_app(iron)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(app, pilot)
+        await pilot.press("7")
+        await pilot.pause()
+        diag = app.query_one("#diag-table", DataTable)
+        assert "pair:L019:L023" in [k.value for k in diag.rows]
+        await pilot.press("s")
+        await settle(app, pilot)
+        assert app.result.sigma < 20
+        assert app.ws.session.level("L019").label == "3d6(3H)4s 4H"
+        await pilot.press("u")  # undoable
+        await settle(app, pilot)
+        assert app.ws.session.level("L019").label == "3d6(3F2)4s 4F"
