@@ -321,10 +321,16 @@ class WorkspaceApp(App):
         at_fit = self.ws.session.copy()
         at_fit.apply(self.result)  # lines at the fitted values, not the start ones
         source = None
-        if self.level_opt is None and self.ws.session.level_sets:
-            last = self.ws.session.level_sets[-1]
-            if last.source and Path(last.source).exists():
-                source = (last.source, list(last.excluded))
+        s = self.ws.session
+        if self.level_opt is None and s.level_sets and s.level_sets[-1].source:
+            # the observed lines of the last level optimisation, read again (the list's
+            # path as written, or beside the session file)
+            last = s.level_sets[-1]
+            for cand in (Path(last.source),
+                         (s.path.parent if s.path else Path.cwd()) / last.source):
+                if cand.exists():
+                    source = (str(cand), list(last.excluded))
+                    break
         self._lines_worker(at_fit, self.ws.generation, dict(self.radial_cache), source)
 
     @work(thread=True, exclusive=True, group="lines", exit_on_error=False)

@@ -356,3 +356,27 @@ async def test_diagnosis_proposes_the_exchange_and_s_applies_it(iron):
         await pilot.press("u")  # undoable
         await settle(app, pilot)
         assert app.ws.session.level("L019").label == "3d6(3F2)4s 4F"
+
+
+async def test_lines_view_reads_the_observed_lines_of_the_last_level_set(tmp_path):
+    # the invented two-parity demo and its invented line list (sample_sessions/)
+    p = copy_sample(tmp_path, "kestrel_two_parity.toml")
+    copy_sample(tmp_path, "kestrel_two_parity_lines.txt")
+    s = load(p)
+    s.apply_levels(s.optimise_levels(str(tmp_path / "kestrel_two_parity_lines.txt")))
+    s.save()
+    app = make_app(p)
+    async with app.run_test(size=(120, 36)) as pilot:
+        await settle(app, pilot)
+        app.select_level("L012")
+        await pilot.press("6")
+        for _ in range(300):
+            await app.workers.wait_for_complete()
+            await pilot.pause()
+            if app.lines_cache is not None:
+                break
+        await pilot.pause()
+        table = app.query_one("#obs-lines-table", DataTable)
+        assert table.row_count == 4  # L012 has four classified lines in the list
+        others = {str(table.get_row(k)[1]) for k in table.rows}
+        assert all(o.startswith("L") for o in others)  # the other level's id
