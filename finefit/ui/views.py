@@ -68,6 +68,22 @@ def _table_cursor_key(table: DataTable) -> str | None:
         return None
 
 
+def fill_table(table: DataTable, spec: list[tuple[str, str, bool, int, bool]],
+               rows: list[dict[str, tuple[str, str]]], available: int) -> None:
+    """Fill a table with the columns of ``spec`` (key, title, required, shrink_to,
+    right-justified) that fit ``available`` cells whole (formatting.fit_columns)."""
+    columns = [Column(k, t, max([len(t)] + [len(r[k][0]) for r in rows]), req, shrink)
+               for k, t, req, shrink, _ in spec]
+    shown = fit_columns(columns, available)
+    right = {k for k, _, _, _, r in spec if r}
+    table.clear(columns=True)
+    for c in shown:
+        table.add_column(c.title, key=c.key, width=c.width)
+    for r in rows:
+        table.add_row(*[Text(clip(r[c.key][0], c.width), style=r[c.key][1],
+                             justify="right" if c.key in right else "left") for c in shown])
+
+
 # ---------------------------------------------------------------------- levels
 class LevelsView(View):
     """Observed levels against the fit, with the composition pane."""
@@ -399,18 +415,6 @@ class LinesView(View):
             yield Static("", id="obs-lines-note", markup=False)
             yield DataTable(id="obs-lines-table", cursor_type="row")
 
-    def on_mount(self) -> None:
-        ln = self.query_one("#lines-table", DataTable)
-        for key, label in (("air", "λ air (Å)"), ("vac", "λ vac (Å)"), ("sigma", "σ (cm-1)"),
-                           ("unc", "±"), ("other", "other level"), ("J", "J"), ("gf", "gf"),
-                           ("A", "A (s-1)")):
-            ln.add_column(label, key=key)
-        ob = self.query_one("#obs-lines-table", DataTable)
-        for key, label in (("line", "line"), ("other", "other level"), ("obs", "σ obs"),
-                           ("ritz", "σ Ritz"), ("or", "obs-Ritz"), ("z", "/σ"),
-                           ("flags", "classification")):
-            ob.add_column(label, key=key)
-
     def focus_target(self):
         return self.query_one("#lines-table")
 
@@ -437,14 +441,25 @@ class LinesView(View):
         note.update(Text(f"{len(mine)} observed lines of {lid} in {opt.source or 'the list'}"
                          f" (chi2/dof {opt.reduced_chi2 or 0:.2f}; {n_bad} beyond 3 σ)",
                          style="bold" if n_bad else ""))
+        rows = []
         for x in sorted(mine, key=lambda x: x.wavenumber):
             z = "" if x.normalised is None else f"{x.normalised:+.1f}"
             style = "bold" if "outlier" in x.flags else ""
-            table.add_row(Text(str(x.source_line)), Text(x.upper if x.lower == lid else x.lower),
-                          Text(paren(x.wavenumber, x.uncertainty)),
-                          Text(paren(x.ritz, x.ritz_uncertainty)), Text(f"{x.residual:+.4f}"),
-                          Text(z, style=style),
-                          Text(", ".join(x.flags) or "classified", style=style))
+            rows.append({"line": (str(x.source_line), ""),
+                         "other": (x.upper if x.lower == lid else x.lower, ""),
+                         "obs": (paren(x.wavenumber, x.uncertainty), ""),
+                         "ritz": (paren(x.ritz, x.ritz_uncertainty), ""),
+                         "or": (f"{x.residual:+.4f}", ""), "z": (z, style),
+                         "flags": (", ".join(x.flags) or "classified", style)})
+        fill_table(table, [("line", "line", True, 0, True), ("other", "other level", True, 0,
+                                                                False),
+                           ("obs", "σ obs", True, 0, True), ("or", "obs-Ritz", True, 0, True),
+                           ("z", "/σ", True, 0, True), ("flags", "classification", True, 8,
+                                                        False),
+                           ("ritz", "σ Ritz", False, 0, True)], rows, self.available())
+
+    def available(self) -> int:
+        return max((self.size.width or self.app.size.width) - 2, 30)
 
     def draw_predicted(self) -> None:
         app = self.app
@@ -479,14 +494,22 @@ class LinesView(View):
         def other_id(x, other):
             return x.upper_id if other is x.upper else x.lower_id
 
+        rows = []
         for x, other in mine[:200]:
-            table.add_row(
-                Text("" if x.air_wavelength is None else f"{x.air_wavelength:.3f}"),
-                Text(f"{x.vacuum_wavelength:.3f}"), Text(f"{x.wavenumber:.3f}"),
-                Text("" if x.wavenumber_uncertainty is None else
-                     f"{x.wavenumber_uncertainty:.2g}"),
-                Text(other_id(x, other) or other.label), Text(format_j(other.J)),
-                Text(f"{x.gf:.3g}"), Text(f"{x.A:.3g}"))
+            rows.append({
+                "air": ("" if x.air_wavelength is None else f"{x.air_wavelength:.3f}", ""),
+                "vac": (f"{x.vacuum_wavelength:.3f}", ""), "sigma": (f"{x.wavenumber:.3f}", ""),
+                "unc": ("" if x.wavenumber_uncertainty is None else
+                        f"{x.wavenumber_uncertainty:.2g}", ""),
+                "other": (other_id(x, other) or other.label, ""),
+                "J": (format_j(other.J), ""), "gf": (f"{x.gf:.3g}", ""),
+                "A": (f"{x.A:.3g}", "")})
+        fill_table(table, [("air", "λ air (Å)", True, 0, True), ("sigma", "σ (cm-1)", True, 0,
+                                                                  True),
+                           ("other", "other level", True, 10, False), ("J", "J", True, 0, True),
+                           ("gf", "gf", True, 0, True), ("A", "A (s-1)", True, 0, True),
+                           ("unc", "±", False, 0, True), ("vac", "λ vac (Å)", False, 0, True)],
+                   rows, self.available())
 
 
 # ---------------------------------------------------------------------- diagnosis

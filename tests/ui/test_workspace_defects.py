@@ -366,7 +366,7 @@ async def test_lines_view_reads_the_observed_lines_of_the_last_level_set(tmp_pat
     s.apply_levels(s.optimise_levels(str(tmp_path / "kestrel_two_parity_lines.txt")))
     s.save()
     app = make_app(p)
-    async with app.run_test(size=(120, 36)) as pilot:
+    async with app.run_test(size=(80, 24)) as pilot:
         await settle(app, pilot)
         app.select_level("L012")
         await pilot.press("6")
@@ -380,3 +380,6 @@ async def test_lines_view_reads_the_observed_lines_of_the_last_level_set(tmp_pat
         assert table.row_count == 4  # L012 has four classified lines in the list
         others = {str(table.get_row(k)[1]) for k in table.rows}
         assert all(o.startswith("L") for o in others)  # the other level's id
+        view = app.query_one(views.LinesView)
+        assert_no_cut_column(table, view.available())
+        assert_no_cut_column(app.query_one("#lines-table", DataTable), view.available())
