@@ -78,6 +78,7 @@ class WorkspaceApp(App):
         self.selected_id: str | None = None  # the selected level (levels view, O-C plot)
         self.pending_select: str | None = None  # select this level at the next redraw
         self.last_warnings: list[str] = []
+        self.corr_first = 0  # the first column shown in the correlation view
 
     # ------------------------------------------------------------------ layout
     def compose(self) -> ComposeResult:
@@ -585,6 +586,12 @@ class WorkspaceApp(App):
 
     def action_next_point(self) -> None:
         self._move_point(1)
+
+    def action_corr_columns(self, step: int) -> None:
+        view = self.query_one(views.CorrView)
+        shown = max(len(view.query_one(DataTable).columns) - 1, 1)
+        self.corr_first += step * shown
+        view.redraw()
 
     # ------------------------------------------------------------------ actions: parameters
     def action_toggle_vary(self) -> None:

@@ -16,7 +16,7 @@ from finefit.ui.commands import COMMANDS
 KEY_NAMES = {"space": "Space", "slash": "/", "exclamation_mark": "!", "question_mark": "?",
              "enter": "Enter", "delete": "Delete", "left_square_bracket": "[",
              "right_square_bracket": "]", "home": "Home", "end": "End", "left": "←",
-             "right": "→"}
+             "right": "→", "less_than_sign": "<", "greater_than_sign": ">"}
 
 FLAG_LEGEND = ("flag column: x excluded  p pinned to a state  ≠ label disagrees with the "
                "attached state  ! |O-C| > 2σ  !! |O-C| > 3σ")

@@ -331,9 +331,14 @@ class ParamsView(View):
 
 # ---------------------------------------------------------------------- correlations
 class CorrView(View):
+    """The correlation matrix: full parameter names on the rows, numbered columns; only
+    columns that fit whole are shown (< and > move the window across the rest)."""
+
     TAB = "corr"
+    CELL = 6  # "+0.98*"
 
     def compose(self) -> ComposeResult:
+        yield Static("", id="corr-note", markup=False)
         yield DataTable(id="corr-table", cursor_type="cell")
 
     def focus_target(self):
@@ -348,12 +353,25 @@ class CorrView(View):
             return
         names, cells = pictures.correlation_cells(
             r, app.ws.session.options.correlation_threshold)
+        n = len(names)
+        labels = [f"{i + 1:>2} {name}" for i, name in enumerate(names)]
+        namew = max([len(x) for x in labels] + [9])
+        avail = max((self.size.width or app.size.width) - 2, 30)
+        k = max(1, min(n, (avail - namew - 2) // (self.CELL + 2)))
+        app.corr_first = min(max(app.corr_first, 0), max(n - k, 0))
+        first = app.corr_first
+        cols = range(first, min(first + k, n))
+        threshold = app.ws.session.options.correlation_threshold
+        window = "" if k >= n else (f"columns {first + 1}–{cols[-1] + 1} of {n} "
+                                    "(< > show the others); ")
+        self.query_one("#corr-note", Static).update(Text(
+            f"{window}* marks |ρ| ≥ {threshold:g}", style="dim"))
         # the row names are the full parameter names; the columns carry their numbers
-        table.add_column(Text("parameter (|ρ| ≥ threshold marked *)"), key="name")
-        for i in range(len(names)):
-            table.add_column(Text(str(i + 1), justify="right"), key=f"c{i}", width=6)
-        for i, n in enumerate(names):
-            table.add_row(Text(f"{i + 1:>2} {n}"), *cells[i], key=f"r{i}")
+        table.add_column(Text("parameter"), key="name", width=namew)
+        for i in cols:
+            table.add_column(Text(str(i + 1), justify="right"), key=f"c{i}", width=self.CELL)
+        for i in range(n):
+            table.add_row(Text(labels[i]), *[cells[i][j] for j in cols], key=f"r{i}")
 
 
 # ---------------------------------------------------------------------- pictures

@@ -195,6 +195,15 @@ async def test_7_correlation_names_keep_the_configuration(iron):
         names = [str(table.get_row(k)[0]) for k in table.rows]
         assert len(set(names)) == len(names)
         assert any("3d7: Eav" in n for n in names) and any("3d6 4s: Eav" in n for n in names)
+        await pilot.resize_terminal(80, 24)  # columns that do not fit are not cut
+        await pilot.pause()
+        await pilot.pause()
+        view = app.query_one(views.CorrView)
+        assert_no_cut_column(table, view.size.width - 2)
+        first = [c.key.value for c in table.columns.values()][1]
+        await pilot.press("greater_than_sign")
+        await pilot.pause()
+        assert [c.key.value for c in table.columns.values()][1] != first
 
 
 async def test_8_filter_language(neon):
