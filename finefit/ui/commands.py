@@ -34,7 +34,8 @@ COMMANDS: tuple[Command, ...] = (
             "(taking a state another level holds exchanges the two, labels included)",
             views=LEVELS),
     Command("edit", "e,enter", "Edit", "Edit the selected level's energy, uncertainty and "
-            "label, or the selected parameter's value and bounds", views=("levels", "params")),
+            "label, or the selected parameter's value and bounds", views=("levels", "params"),
+            priority=True),  # before the table's own Enter
     Command("add_level", "a", "Add level", "Add an observed level (it starts excluded: check "
             "where it attaches, then include it with Space)", show=False),
     Command("delete_level", "x,delete", "Delete level", "Delete the selected observed level",

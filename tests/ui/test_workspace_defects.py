@@ -162,7 +162,7 @@ async def test_6_forms_and_dialogs(neon):
     async with app.run_test(size=(80, 24)) as pilot:
         await settle(app, pilot)
         app.select_level("L002")
-        await pilot.press("e")
+        await pilot.press("enter")  # Enter edits, like e (the table does not take it)
         await pilot.pause()
         assert isinstance(app.screen, FormScreen)
         assert app.focused is app.screen.query_one("#f-energy", Input)
