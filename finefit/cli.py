@@ -712,7 +712,7 @@ def cmd_figures(args) -> int:
 def cmd_workspace(args) -> int:
     from finefit.ui.app import make_app
 
-    make_app(args.session).run()
+    make_app(args.session, deferred=True).run()  # levels on screen before the models
     return EXIT_OK
 
 

@@ -40,6 +40,9 @@ from finefit.workspace import Workspace
 
 SORTS = ("energy", "|O-C|", "id", "J")
 _BY_NAME = {c.name: c for c in COMMANDS}
+# what works while the session's models are still being built (start-up)
+_WHILE_LOADING = {"help", "quit_workspace", "show_tab", "first_row", "last_row",
+                  "detail_down", "detail_up"}
 
 
 def _bindings() -> list[Binding]:
@@ -54,9 +57,15 @@ class WorkspaceApp(App):
     TITLE = "finefit"
     BINDINGS = _bindings()
 
-    def __init__(self, workspace: Workspace, offer_recovery: bool = False) -> None:
+    def __init__(self, workspace: Workspace | None, offer_recovery: bool = False,
+                 preview=None, path: Path | None = None) -> None:
+        """``workspace`` is None for a deferred start: the levels of ``preview`` (the
+        parsed session file at ``path``) are shown while the models are built in a
+        thread."""
         super().__init__()
         self.ws = workspace
+        self.preview = preview
+        self.path = path
         self.offer_recovery = offer_recovery
         self.result: FitResult | None = None
         self.result_generation = -1  # the workspace generation the result belongs to
@@ -101,14 +110,18 @@ class WorkspaceApp(App):
         return self.level_filter.text
 
     def on_mount(self) -> None:
-        s = self.ws.session
-        self.sub_title = f"{s.path.name if s.path else 'unsaved'} — {', '.join(s.configurations)}"
+        path = self.ws.session.path if self.ws is not None else self.path
+        confs = (self.ws.session.configurations if self.ws is not None
+                 else self.preview.configurations)
+        self.sub_title = f"{path.name if path else 'unsaved'} — {', '.join(confs)}"
         self.detail_visible = self.size.width >= views.SIDE_BY_SIDE
         lv = self.query_one(views.LevelsView)
         lv.redraw()  # the observed levels are on screen before the first fit returns
         lv.table.focus()
         self.update_status()
-        if self.offer_recovery:
+        if self.ws is None:
+            self._load_worker()
+        elif self.offer_recovery:
             self.push_screen(
                 ChoiceScreen(
                     "Unsaved changes from an earlier session were found in the autosave "
@@ -119,6 +132,25 @@ class WorkspaceApp(App):
             )
         else:
             self.call_after_refresh(self.schedule_fit)
+
+    @work(thread=True, exclusive=True, group="load", exit_on_error=False)
+    def _load_worker(self) -> None:
+        try:
+            ws = Workspace(Session.load(self.path))
+        except Exception as exc:  # noqa: BLE001 - shown in the status line
+            self.call_from_thread(self._load_failed, exc)
+            return
+        self.call_from_thread(self._loaded, ws)
+
+    def _load_failed(self, exc: Exception) -> None:
+        self.fit_error = str(exc)
+        self.update_status()
+
+    def _loaded(self, ws: Workspace) -> None:
+        self.ws = ws
+        self.preview = None
+        self.refresh_bindings()
+        self.schedule_fit()
 
     def _recovery_answer(self, answer: str | None) -> None:
         path = self.ws.session.path
@@ -141,6 +173,8 @@ class WorkspaceApp(App):
         if command is None:
             return True
         if isinstance(self.screen, ModalScreen):
+            return False
+        if self.ws is None and command.name not in _WHILE_LOADING:
             return False
         if command.views and self.current_tab() not in command.views:
             return False
@@ -227,7 +261,8 @@ class WorkspaceApp(App):
         rows = self.rows_by_id()
         sigma = self.result.sigma if self.result and self.result.sigma else None
         out = []
-        for lv in self.ws.session.levels:
+        levels = self.ws.session.levels if self.ws is not None else self.preview.levels
+        for lv in levels:
             row = rows.get(lv.id)
             if self.outliers_only:
                 if row is None or sigma is None or abs(row.residual) <= 2 * sigma:
@@ -257,11 +292,13 @@ class WorkspaceApp(App):
     def update_status(self) -> None:
         r = self.result
         parts: list[tuple[int, str]] = []
+        if self.ws is None and not self.fit_error:
+            parts.append((0, "loading the model…"))
         if self.fit_running:
             parts.append((0, "fitting…"))
         if self.fit_error:
             parts.append((0, f"cannot fit: {self.fit_error}"))
-        if self.ws.dirty:
+        if self.ws is not None and self.ws.dirty:
             parts.append((0, "unsaved"))
         if r is not None:
             sig = "σ = —" if r.sigma is None else f"σ = {r.sigma:.4g}"
@@ -877,6 +914,9 @@ class WorkspaceApp(App):
         self.action_quit_workspace()
 
     def action_quit_workspace(self) -> None:
+        if self.ws is None:
+            self.exit()
+            return
         if not self.ws.dirty:
             self.ws.discard_journal()
             self.exit()
@@ -903,12 +943,21 @@ class WorkspaceApp(App):
             yield SystemCommand(c.title, c.help, partial(self.run_action, c.action))
 
 
-def make_app(path: str | Path) -> WorkspaceApp:
-    """The workspace for one session file (used by the command line and the tests)."""
+def make_app(path: str | Path, deferred: bool = False) -> WorkspaceApp:
+    """The workspace for one session file (used by the command line and the tests).
+
+    ``deferred`` (the command line): the file is only read and checked here, the
+    levels are on screen at once and the models are built in a thread."""
     p = Path(path)
     pending = Workspace.pending_journal(p)
     if not p.exists() and pending is None:
         raise FinefitError(f"session file {str(p)!r} does not exist", str(p))
+    if deferred and pending is None:
+        from finefit.storage.atomic import read_text
+        from finefit.storage.session_file import parse_session
+
+        return WorkspaceApp(None, preview=parse_session(read_text(p, "session file"),
+                                                        source=str(p)), path=p)
     if p.exists():
         ws = Workspace(Session.load(p))
     else:

@@ -283,6 +283,8 @@ class ParamsView(View):
         keep = table.cursor_row if table.row_count else 0
         r = app.result
         data = []
+        if app.ws is None:  # still loading
+            return
         for name, p in app.ws.session.parameters.items():
             value = r.values.get(name, p.value) if r else p.value
             status = r.status.get(name, "") if r else ("vary" if p.vary else "fixed")
@@ -484,6 +486,8 @@ class LinesView(View):
         note = self.query_one("#lines-note", Static)
         table = self.query_one("#lines-table", DataTable)
         table.clear()
+        if app.ws is None:
+            return
         s = app.ws.session
         if set(s.models) != {"even", "odd"}:
             note.update(Text("Predicted lines need configurations of both parities in the "

@@ -392,3 +392,19 @@ async def test_lines_view_reads_the_observed_lines_of_the_last_level_set(tmp_pat
         view = app.query_one(views.LinesView)
         assert_no_cut_column(table, view.available())
         assert_no_cut_column(app.query_one("#lines-table", DataTable), view.available())
+
+
+async def test_start_up_shows_the_levels_before_the_models_are_built(neon):
+    app = make_app(neon, deferred=True)
+    assert app.ws is None  # only the file was read
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.pause()
+        table = app.query_one(views.LevelsView).table
+        assert table.row_count == 20
+        if app.ws is None:  # still building: edits wait, the status says so
+            assert app.check_action("toggle_include", ()) is False
+            assert "loading" in str(app.query_one("#status").render())
+        await settle(app, pilot)
+        assert app.ws is not None and app.result.sigma == pytest.approx(
+            load(neon).fit().sigma, rel=1e-9)
+        assert app.check_action("toggle_include", ()) is True
