@@ -96,10 +96,11 @@ def measure(width: int, height: int) -> None:
         for _ in range(9):
             tmux("send-keys", "-t", SESSION, "Down")
         time.sleep(0.3)
-        times = []
+        times, tables = [], []
         for _ in range(16):
             before = SIGMA.search(status_line())
             before_s = before.group(1) if before else ""
+            row = cursor_id()
             t1 = time.perf_counter()
             tmux("send-keys", "-t", SESSION, "Space")
 
@@ -108,9 +109,15 @@ def measure(width: int, height: int) -> None:
                 m = SIGMA.search(line)
                 return bool(m) and m.group(1) != before_s and "fitting…" not in line
 
+            def flagged(row: str | None = row) -> bool:  # the row shows its new 'x' flag
+                return any(re.match(rf"^\s*{row}\s+x", line) for line in screen())
+
             t2 = wait_for(landed, timeout=10)
+            t3 = wait_for(flagged, timeout=10) if row else None
             if t2 is not None:
                 times.append(t2 - t1)
+            if t3 is not None:
+                tables.append(t3 - t1)
             tmux("send-keys", "-t", SESSION, "Down")
             time.sleep(0.15)
         if times:
@@ -118,6 +125,9 @@ def measure(width: int, height: int) -> None:
             print(f"[{width}x{height}] key press -> new sigma on screen: median "
                   f"{med * 1e3:.0f} ms, max {max(times) * 1e3:.0f} ms over {len(times)} "
                   f"presses (target 300 ms, ratio {med / 0.3:.2f})")
+        if tables:
+            print(f"[{width}x{height}] key press -> refitted table on screen: median "
+                  f"{statistics.median(tables) * 1e3:.0f} ms, max {max(tables) * 1e3:.0f} ms")
         # a long fit: the same session with a tolerance no fit reaches quickly
         tmux("send-keys", "-t", SESSION, "q")
         time.sleep(0.3)

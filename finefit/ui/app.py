@@ -233,7 +233,9 @@ class WorkspaceApp(App):
         if new and result.suspected_swaps:
             self.notify(f"{len(result.suspected_swaps)} suspected exchange(s): 7", timeout=4)
         self.update_status()
-        self.redraw_views()
+        # the status line (new sigma) is painted first; the tables, which cost a frame
+        # of their own, follow at once
+        self.call_after_refresh(self.redraw_views)
 
     def redraw_views(self) -> None:
         """Tell every view that the fit (or what it shows) changed."""
