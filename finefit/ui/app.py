@@ -343,6 +343,9 @@ class WorkspaceApp(App):
         view = self._view(self.current_tab())
         if view is not None:
             view.shown()
+            if not isinstance(self.screen, ModalScreen):
+                view.focus_target().focus()  # also when the tab was clicked
+            self.refresh_bindings()
 
     def on_resize(self, event) -> None:
         self.call_after_refresh(self.update_status)  # the views follow on their own resize
@@ -722,8 +725,12 @@ class WorkspaceApp(App):
             result = self.result
             if any(self.ws.session.parameters[n].value != v
                    for n, v in result.values.items() if n in self.ws.session.parameters):
-                self.ws.edit("took the fitted values for writing",
-                             lambda s: s.take_fit(result))
+                try:
+                    self.ws.edit("took the fitted values for writing",
+                                 lambda s: s.take_fit(result))
+                except FinefitError as exc:
+                    self.notify(str(exc), title="not saved", severity="error")
+                    return False
                 self.result_generation = self.ws.generation  # same values: still current
                 note = " with the fitted values (the previous ones kept as a set)"
         elif self.result is not None:
