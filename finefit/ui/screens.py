@@ -47,6 +47,9 @@ class HelpScreen(ModalScreen[None]):
             yield Static(Text("finefit workspace — keys", style="bold"))
             yield Static(table, id="help-text")
 
+    def on_mount(self) -> None:
+        self.query_one("#help-body").focus()  # arrows and Page Down scroll the help
+
     def plain_text(self, width: int = 100) -> str:
         """The help as plain text of the given width (as it wraps on screen)."""
         from rich.console import Console
