@@ -142,7 +142,10 @@ class WorkspaceApp(EditActions, App):
         self.call_from_thread(self._loaded, ws)
 
     def _load_failed(self, exc: Exception) -> None:
-        self.fit_error = str(exc)
+        if isinstance(exc, FinefitError):  # bad input: said on leaving, exit status 2
+            self.exit(return_code=2, message=f"finefit: {exc}")
+            return
+        self.fit_error = f"{type(exc).__name__}: {exc}"
         self.update_status()
 
     def _loaded(self, ws: Workspace) -> None:
