@@ -408,3 +408,18 @@ async def test_start_up_shows_the_levels_before_the_models_are_built(neon):
         assert app.ws is not None and app.result.sigma == pytest.approx(
             load(neon).fit().sigma, rel=1e-9)
         assert app.check_action("toggle_include", ()) is True
+
+
+async def test_deferred_start_of_a_bad_session_leaves_with_status_2(tmp_path):
+    text = (SAMPLES / "kestrel_neon_like.toml").read_text(encoding="utf-8")
+    i = text.index("[parameters.")
+    bad = tmp_path / "bad.toml"  # a parameter the configurations do not have
+    bad.write_text(text[:i] + '[parameters."2p5 5p: Eav"]\nvalue = 1.0\n\n' + text[i:],
+                   encoding="utf-8")
+    app = make_app(bad, deferred=True)
+    async with app.run_test(size=(80, 24)) as pilot:
+        for _ in range(200):
+            if app.return_code is not None:
+                break
+            await pilot.pause(0.02)
+    assert app.return_code == 2
