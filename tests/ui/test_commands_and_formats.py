@@ -66,3 +66,14 @@ def test_status_keeps_priority_zero_parts():
     text = pack_status(parts, 40)
     assert len(text) <= 40
     assert text.startswith("fitting… │ unsaved │ σ = 3.15")
+
+
+def test_repeated_component_labels_are_numbered():
+    # jj labels of a d^6 subshell do not carry every intermediate coupling, so two
+    # different basis states can share one label (seen in the iron-group demo)
+    from finefit.ui.pictures import composition_bars
+
+    text = composition_bars([("3d6(3/2^2 5/2^4;4)4s(1/2)", 0.23), ("3d6(5/2^6;0)4s(1/2)", 0.2),
+                             ("3d6(3/2^2 5/2^4;4)4s(1/2)", 0.1)], 40).plain
+    assert "4s(1/2) [1]" in text and "4s(1/2) [2]" in text
+    assert "(5/2^6;0)4s(1/2) [" not in text
