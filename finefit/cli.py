@@ -825,8 +825,9 @@ def cmd_figures(args) -> int:
 def cmd_workspace(args) -> int:
     from finefit.ui.app import make_app
 
-    make_app(args.session).run()
-    return EXIT_OK
+    app = make_app(args.session, deferred=True)  # levels on screen before the models
+    app.run()
+    return app.return_code or EXIT_OK  # 2 when the models could not be built
 
 
 # ----------------------------------------------------------------------------- parser

@@ -37,6 +37,7 @@ from finefit.model.estimates import default_link, typical_value
 from finefit.model.hamiltonian import Model
 from finefit.model.label_match import LabelTarget, resolve_label
 from finefit.model.parameters import ParameterSpec
+from finefit.model.statekey import StateKey
 from finefit.notation.configuration import parse_configuration
 from finefit.notation.jvalues import parse_j
 from finefit.storage.atomic import atomic_write_text, read_text
@@ -596,12 +597,12 @@ class Session:
         sols = result.solutions
         unc = {}
         for row in result.levels:
-            unc[(row.parity, round(2 * row.J), row.state_rank - 1)] = row.calc_uncertainty
+            unc[StateKey.of(row)] = row.calc_uncertainty
         for p in result.predictions:
-            unc[(p.parity, round(2 * p.J), p.state_rank - 1)] = p.uncertainty
+            unc[StateKey.of(p)] = p.uncertainty
 
         def level_uncertainty(level):
-            return unc.get((level.parity, level.block, level.position))
+            return unc.get(StateKey.of(level))
 
         obs = {}
         if observed:
@@ -609,10 +610,10 @@ class Session:
                 e, u = row.energy_obs, row.uncertainty or self.options.default_uncertainty
                 if optimised is not None and row.id in optimised.levels:
                     e, u = optimised.levels[row.id]
-                obs[(row.parity, round(2 * row.J), row.state_rank - 1)] = (row.id, e, u)
+                obs[StateKey.of(row)] = (row.id, e, u)
 
         def observed_level(level):
-            return obs.get((level.parity, level.block, level.position))
+            return obs.get(StateKey.of(level))
 
         def ritz_uncertainty(lower_id: str, upper_id: str):
             if optimised is None or lower_id not in optimised.levels \
@@ -657,18 +658,17 @@ class Session:
         if weighted and set(self.models) == {"even", "odd"}:
             lines, _ = self.predict_lines(radial)
             result = self.last_result
-            owner = {(row.parity, round(2 * row.J), row.state_rank - 1): row.id
-                     for row in result.levels}
+            owner = {StateKey.of(row): row.id for row in result.levels}
             sol = result.solutions[parity]
             cands = [lev for lev in sol.levels if lev.block == round(2 * j)]
             if cands:
                 target = min(cands, key=lambda lev: abs(lev.energy - energy))
-                key_t = (parity, target.block, target.position)
+                key_t = StateKey.of(target)
                 weights = {}
                 for x in lines:
                     for a, b in ((x.lower, x.upper), (x.upper, x.lower)):
-                        if (a.parity, a.block, a.position) == key_t:
-                            lid = owner.get((b.parity, b.block, b.position))
+                        if StateKey.of(a) == key_t:
+                            lid = owner.get(StateKey.of(b))
                             if lid is not None:
                                 weights[lid] = max(weights.get(lid, 0.0), x.gf)
                 top_gf = max(weights.values(), default=0.0)
@@ -859,6 +859,38 @@ class Session:
         )
         self.level_sets.append(ls)
         return ls
+
+    def exchange(self, first: str, second: str, result: FitResult) -> None:
+        """Exchange the computed states of two observed levels of one J and parity as
+        ``result`` attached them: each is pinned to the other's state (rank within its J)
+        and their labels are exchanged, so labels and attachment stay consistent."""
+        ra, rb = result.level(first), result.level(second)
+        if (ra.parity, ra.J) != (rb.parity, rb.J):
+            raise FinefitError(f"{first} and {second} differ in J or parity: they cannot "
+                               "exchange states", first)
+        la, lb = self.level(first), self.level(second)
+        self.update_level(first, state=rb.state_rank, label=lb.label)
+        self.update_level(second, state=ra.state_rank, label=la.label)
+
+    def take_fit(self, result: FitResult) -> ParameterSet | None:
+        """Make a fit's values the session's values, keeping the values they replace as a
+        parameter set ("before ..."); None when nothing changes."""
+        changed = {n: self.parameters[n].value for n, v in result.values.items()
+                   if n in self.parameters and self.parameters[n].value != v}
+        if not changed:
+            return None
+        stamp = datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
+        name, k = f"before {stamp}", 2
+        while any(ps.name == name for ps in self.parameter_sets):
+            name, k = f"before {stamp} ({k})", k + 1
+        ps = ParameterSet(
+            name=name, created=stamp, values=self.values(), errors={}, sigma=None,
+            n_levels=0, n_free=0, included=[], converged=False,
+            note="starting values replaced by a fit when the session was written",
+        )
+        self.parameter_sets.append(ps)
+        self.apply(result)
+        return ps
 
     # ------------------------------------------------------------------ parameter sets
     def keep(self, result: FitResult, name: str, note: str = "") -> ParameterSet:

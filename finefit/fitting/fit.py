@@ -840,24 +840,23 @@ class FitProblem:
         return out
 
     def _weakly_determined(self, errors, values, status, known) -> list[str]:
-        out = []
-        names, corr = [var.name for var in self.variables], None
-        for _j, var in enumerate(self.variables):
-            nm = var.name
-            if nm in known or status.get(nm) in ("fixed", "at bound", "undetermined"):
-                continue
-            err = errors.get(nm, 0.0)
-            if math.isfinite(err) and err > abs(values[nm]) and err > 0:
-                out.append(nm)
+        """Varied parameters with an error larger than their value, or with |correlation|
+        above 0.999 with another (besides those already named undetermined)."""
+        names = [var.name for var in self.variables]
+        out = [
+            nm for nm in names
+            if nm not in known
+            and status.get(nm) not in ("fixed", "at bound", "undetermined")
+            and math.isfinite(errors.get(nm, 0.0))
+            and errors.get(nm, 0.0) > max(abs(values[nm]), 0.0)
+            and errors.get(nm, 0.0) > 0
+        ]
         corr = getattr(self, "_corr_v", None)
         if corr is not None:
-            n = corr.shape[0]
-            for a in range(n):
-                for b in range(a + 1, n):
-                    if abs(corr[a, b]) > 0.999:
-                        for k in (a, b):
-                            if names[k] not in out and names[k] not in known:
-                                out.append(names[k])
+            a_idx, b_idx = np.nonzero(np.triu(np.abs(corr) > 0.999, k=1))
+            for k in np.concatenate([a_idx, b_idx]):
+                if names[k] not in out and names[k] not in known:
+                    out.append(names[k])
         return out
 
     def _is_fixed_point(self, v: np.ndarray, rows) -> bool:

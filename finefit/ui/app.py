@@ -1,8 +1,11 @@
 """The finefit workspace: observed levels, parameters and pictures, refitted live.
 
 All physics and file handling come from finefit.session / finefit.workspace; this
-module only shows their state and turns keys into edits. Fits run in a thread worker
-(a newer edit cancels a running fit; a generation counter drops stale results).
+module holds the app's state, turns keys (finefit.ui.commands) into edits and runs the
+fits; each view (finefit.ui.views) draws itself when a FitFinished message arrives.
+Fits run in a thread worker (a newer edit cancels a running fit; a generation counter
+drops stale results). Which keys apply where is decided in ``check_action`` from the
+command registry (no key works behind a dialog).
 """
 
 from __future__ import annotations
@@ -15,8 +18,6 @@ from rich.text import Text
 from textual import work
 from textual.app import App, ComposeResult, SystemCommand
 from textual.binding import Binding
-from textual.containers import Horizontal, VerticalScroll
-from textual.coordinate import Coordinate
 from textual.css.query import NoMatches
 from textual.screen import ModalScreen
 from textual.widgets import DataTable, Footer, Header, Static, TabbedContent, TabPane
@@ -24,137 +25,105 @@ from textual.worker import get_current_worker
 
 from finefit.errors import FinefitError, quote
 from finefit.fitting.fit import FitCancelled
+from finefit.fitting.level_filter import LevelFilter, parse_filter
 from finefit.fitting.results import FitResult
-from finefit.fitting.validation import parse_number
-from finefit.notation.jvalues import format_j
 from finefit.session import Session
 from finefit.threads import engine_threads
-from finefit.ui import pictures
+from finefit.ui import views
 from finefit.ui.commands import COMMANDS
-from finefit.ui.screens import ChoiceScreen, FormScreen, HelpScreen, PickScreen
+from finefit.ui.edits import EditActions
+from finefit.ui.formatting import pack_status
+from finefit.ui.messages import FitFinished
+from finefit.ui.screens import ChoiceScreen, FormScreen, HelpScreen
 from finefit.workspace import FileChangedError, Recovery, Workspace
 
 SORTS = ("energy", "|O-C|", "id", "J")
+_BY_NAME = {c.name: c for c in COMMANDS}
+# what works while the session's models are still being built (start-up)
+_WHILE_LOADING = {"help", "quit_workspace", "show_tab", "first_row", "last_row",
+                  "detail_down", "detail_up"}
 
 
 def _bindings() -> list[Binding]:
-    out = []
-    for c in COMMANDS:
-        out.append(Binding(c.keys, c.action, c.title, show=c.show,
-                           id=c.action.split("(")[0] + (c.action[c.action.find("("):]
-                                                       if "(" in c.action else "")))
-    return out
+    return [Binding(c.keys, c.action, c.title, show=c.show, priority=c.priority,
+                    id=c.action) for c in COMMANDS]
 
 
-class WorkspaceApp(App):
+class WorkspaceApp(EditActions, App):
     """Interactive term analysis of one session file."""
 
     CSS_PATH = "finefit.tcss"
     TITLE = "finefit"
     BINDINGS = _bindings()
 
-    def __init__(self, workspace: Workspace, offer_recovery: bool = False,
+    def __init__(self, workspace: Workspace | None, offer_recovery: bool = False,
+                 preview=None, path: Path | None = None,
                  recovery: Recovery | None = None) -> None:
+        """``workspace`` is None for a deferred start: the levels of ``preview`` (the
+        parsed session file at ``path``) are shown while the models are built in a
+        thread. ``recovery``: an autosave journal found at start (see workspace.py)."""
         super().__init__()
         self.ws = workspace
+        self.preview = preview
+        self.path = path
         self.offer_recovery = offer_recovery or recovery is not None
         self.recovery = recovery
         self.result: FitResult | None = None
+        self.result_generation = -1  # the workspace generation the result belongs to
         self.previous_sigma: float | None = None
         self.fit_running = False
         self.fit_error: str | None = None
         self.message = ""
         self.sort_mode = 0
-        self.filter_text = ""
+        self.level_filter: LevelFilter = parse_filter("")
         self.outliers_only = False
         self.detail_visible = True
         self.fits_done = 0
         self.fit_landed: list[float] = []  # perf_counter times of applied fit results
         self.diagram_choice = 0  # 0: all configurations, k: the k-th
-        self.wide_table = False
         self.lines_cache: tuple[int, list] | None = None  # (generation, predicted lines)
         self.radial_cache: dict = {}
         self.lines_running = False
-        self.pictures_stale = True
         self.level_opt = None  # the last level optimisation (observed lines of a level)
+        self.selected_id: str | None = None  # the selected level (levels view, O-C plot)
+        self.pending_select: str | None = None  # select this level at the next redraw
+        self.last_warnings: list[str] = []
+        self.corr_first = 0  # the first column shown in the correlation view
 
     # ------------------------------------------------------------------ layout
     def compose(self) -> ComposeResult:
         yield Header(show_clock=False)
         with TabbedContent(initial="levels", id="tabs"):
-            with TabPane("Levels", id="levels"):
-                with Horizontal(id="levels-row"):
-                    yield DataTable(id="levels-table", cursor_type="row")
-                    with VerticalScroll(id="detail"):
-                        yield Static("", id="detail-text", markup=False)
-            with TabPane("Parameters", id="params"):
-                yield DataTable(id="params-table", cursor_type="row")
-            with TabPane("Correlations", id="corr"):
-                yield DataTable(id="corr-table", cursor_type="cell")
-            with TabPane("O-C plot", id="resid"):
-                yield Static("", id="resid-plot", markup=False)
-            with TabPane("Diagram", id="diagram"):
-                yield Static("", id="diagram-plot", markup=False)
-            with TabPane("Lines", id="lines"):
-                yield Static("", id="lines-note", markup=False)
-                yield DataTable(id="lines-table", cursor_type="row")
-                yield Static("", id="obs-lines-note", markup=False)
-                yield DataTable(id="obs-lines-table", cursor_type="row")
+            for tab, title, view in (
+                ("levels", "1 Levels", views.LevelsView), ("params", "2 Parameters",
+                                                            views.ParamsView),
+                ("corr", "3 Correl.", views.CorrView), ("resid", "4 O-C", views.ResidView),
+                ("diagram", "5 Diagram", views.DiagramView),
+                ("lines", "6 Lines", views.LinesView), ("diag", "7 Check", views.DiagView),
+            ):
+                with TabPane(title, id=tab):
+                    yield view(id=f"{tab}-view")
         yield Static("", id="status", markup=False)
         yield Footer()
 
+    @property
+    def filter_text(self) -> str:
+        return self.level_filter.text
+
     def on_mount(self) -> None:
-        s = self.ws.session
-        self.sub_title = f"{s.path.name if s.path else 'unsaved'} — {', '.join(s.configurations)}"
-        lt = self.query_one("#levels-table", DataTable)
-        # numeric columns get fixed widths: the table is rebuilt after every fit and must
-        # not jump or truncate numbers
-        # on wide screens the configuration, parity and observed g get their own columns
-        # (on narrow ones parity is the ° on J and g obs is in the detail pane)
-        self.wide_table = self.size.width >= 140
-        # every column has a fixed width: measuring auto-width cells after each fit costs
-        # as much as drawing them
-        lvs = self.ws.session.levels
-        w_id = max([len(lv.id) for lv in lvs] + [4])
-        w_conf = max([len(c) for c in s.configurations] + [13])
-        label_names = [len(lv.label or "") for lv in lvs]
-        w_label = min(max(label_names + [len(c) + 2 for c in s.configurations] + [8]), 40)
-        columns = [("id", "id", w_id)]
-        if self.wide_table:
-            columns.append(("conf", "configuration", w_conf))
-        columns += [("label", "label", w_label), ("J", "J", 5)]
-        if self.wide_table:
-            columns.append(("par", "parity", 6))
-        columns += [("eobs", "E obs", 11), ("ecalc", "E calc", 11), ("oc", "O-C", 12),
-                    ("pur", "%LS", 4), ("lead", "leading (best scheme)", w_label + 10),
-                    ("gc", "g calc", 7)]
-        if self.wide_table:
-            columns.append(("go", "g obs", 6))
-        columns.append(("flags", "", 14))
-        for key, label, width in columns:
-            lt.add_column(label, key=key, width=width)
-        ln = self.query_one("#lines-table", DataTable)
-        for key, label, width in (("air", "λ air (Å)", 11), ("vac", "λ vac (Å)", 11),
-                                  ("sigma", "σ (cm-1)", 10), ("unc", "± (cm-1)", 8),
-                                  ("other", "other level", None), ("J", "J", 5),
-                                  ("gf", "gf", 8), ("A", "A (s-1)", 9)):
-            ln.add_column(label, key=key, width=width)
-        ob = self.query_one("#obs-lines-table", DataTable)
-        for key, label, width in (("line", "line", 5), ("other", "other level", 8),
-                                  ("obs", "σ obs", 15), ("ritz", "σ Ritz", 15),
-                                  ("or", "obs-Ritz", 9), ("z", "/σ", 5), ("flags", "flags", 24)):
-            ob.add_column(label, key=key, width=width)
-        pt = self.query_one("#params-table", DataTable)
-        for key, label in (("name", "parameter"), ("value", "value"), ("err", "± error"),
-                           ("state", "status"), ("link", "link"), ("bounds", "bounds"),
-                           ("ratio", "ratio"), ("to", "to")):
-            pt.add_column(label, key=key)
-        self.detail_visible = self.size.width >= 110
-        self._apply_detail_visibility()
-        self.refresh_all()
-        lt.focus()
+        path = self.ws.session.path if self.ws is not None else self.path
+        confs = (self.ws.session.configurations if self.ws is not None
+                 else self.preview.configurations)
+        self.sub_title = f"{path.name if path else 'unsaved'} — {', '.join(confs)}"
+        self.detail_visible = self.size.width >= views.SIDE_BY_SIDE
+        lv = self.query_one(views.LevelsView)
+        lv.redraw()  # the observed levels are on screen before the first fit returns
+        lv.table.focus()
+        self.update_status()
         rec = self.recovery
-        if rec is not None and rec.file_changed:
+        if self.ws is None:
+            self._load_worker()
+        elif rec is not None and rec.file_changed:
             lines = ["Unsaved edits from an earlier session were found in the autosave "
                      "journal, and the file has changed since they started."]
             if rec.edits:
@@ -179,7 +148,29 @@ class WorkspaceApp(App):
                 self._recovery_answer,
             )
         else:
-            self.schedule_fit()
+            self.call_after_refresh(self.schedule_fit)
+
+    @work(thread=True, exclusive=True, group="load", exit_on_error=False)
+    def _load_worker(self) -> None:
+        try:
+            ws = Workspace(Session.load(self.path))
+        except Exception as exc:  # noqa: BLE001 - shown in the status line
+            self.call_from_thread(self._load_failed, exc)
+            return
+        self.call_from_thread(self._loaded, ws)
+
+    def _load_failed(self, exc: Exception) -> None:
+        if isinstance(exc, FinefitError):  # bad input: said on leaving, exit status 2
+            self.exit(return_code=2, message=f"finefit: {exc}")
+            return
+        self.fit_error = f"{type(exc).__name__}: {exc}"
+        self.update_status()
+
+    def _loaded(self, ws: Workspace) -> None:
+        self.ws = ws
+        self.preview = None
+        self.refresh_bindings()
+        self.schedule_fit()
 
     def _recovery_answer(self, answer: str | None) -> None:
         path = self.ws.session.path
@@ -201,9 +192,29 @@ class WorkspaceApp(App):
             copy_path = rec.keep_journal_copy()
             self.ws.discard_journal()
             self.message = f"the journal's edits are kept in {copy_path.name}"
+        else:
+            self.ws.discard_journal()
+            self.message = "discarded the autosave journal"
         self.recovery = None
-        self.refresh_all()
+        self.redraw_views()
         self.schedule_fit()
+
+    # ------------------------------------------------------------------ actions allowed
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        """No workspace key acts behind a dialog; view keys act only in their view (the
+        footer shows what applies)."""
+        command = _BY_NAME.get(action)
+        if action == "quit":
+            return not isinstance(self.screen, ChoiceScreen)
+        if command is None:
+            return True
+        if isinstance(self.screen, ModalScreen):
+            return False
+        if self.ws is None and command.name not in _WHILE_LOADING:
+            return False
+        if command.views and self.current_tab() not in command.views:
+            return False
+        return True
 
     # ------------------------------------------------------------------ fitting
     def schedule_fit(self) -> None:
@@ -249,38 +260,52 @@ class WorkspaceApp(App):
         if self.result is not None:
             self.previous_sigma = self.result.sigma
         self.result = result
+        self.result_generation = generation
         self.lines_cache = None  # predicted lines follow the new fit
         self.fits_done += 1
         self.fit_landed.append(time.perf_counter())
-        self.refresh_all()
+        new = [w for w in result.warnings if w not in self.last_warnings]
+        self.last_warnings = list(result.warnings)
+        if new and result.suspected_swaps:
+            self.notify(f"{len(result.suspected_swaps)} suspected exchange(s): 7", timeout=4)
+        self.update_status()
+        # the status line (new sigma) is painted first; the tables, which cost a frame
+        # of their own, follow at once
+        self.call_after_refresh(self.redraw_views)
+
+    def redraw_views(self) -> None:
+        """Tell every view that the fit (or what it shows) changed."""
+        for view in self.query(views.View):
+            view.post_message(FitFinished(self.result))
 
     def last_fit_landed_after(self, t: float) -> float:
         """When the first fit result after time ``t`` arrived (inf if none yet)."""
         return next((x for x in self.fit_landed if x > t), float("inf"))
 
-    # ------------------------------------------------------------------ refreshing
-    def refresh_all(self) -> None:
-        self.refresh_levels()
-        self.refresh_params()
-        self.refresh_pictures()
-        self.refresh_detail()
-        if self._tab() == "lines":
-            self.refresh_lines()
-        self.update_status()
+    # ------------------------------------------------------------------ state read by views
+    def current_tab(self) -> str:
+        try:
+            return self.query_one(TabbedContent).active
+        except NoMatches:
+            return ""
 
-    def _rows_by_id(self) -> dict:
+    def sort_name(self) -> str:
+        return SORTS[self.sort_mode]
+
+    def rows_by_id(self) -> dict:
         return {row.id: row for row in self.result.levels} if self.result else {}
 
     def visible_levels(self) -> list:
-        rows = self._rows_by_id()
+        rows = self.rows_by_id()
         sigma = self.result.sigma if self.result and self.result.sigma else None
         out = []
-        for lv in self.ws.session.levels:
+        levels = self.ws.session.levels if self.ws is not None else self.preview.levels
+        for lv in levels:
             row = rows.get(lv.id)
             if self.outliers_only:
                 if row is None or sigma is None or abs(row.residual) <= 2 * sigma:
                     continue
-            if self.filter_text and not self._matches(lv, row):
+            if self.level_filter and not self.level_filter.matches(lv, row, sigma):
                 continue
             out.append((lv, row))
         mode = SORTS[self.sort_mode]
@@ -292,337 +317,134 @@ class WorkspaceApp(App):
             out.sort(key=lambda t: (t[0].J, t[0].energy))
         return out
 
-    def _matches(self, lv, row) -> bool:
-        for token in self.filter_text.split():
-            key, _, value = token.partition("=")
-            if value:
-                key = key.lower()
-                if key in ("j",):
-                    if format_j(lv.J) != value and str(lv.J) != value:
-                        return False
-                elif key in ("p", "parity"):
-                    if not lv.parity.startswith(value.lower()):
-                        return False
-                elif key in ("c", "conf", "configuration"):
-                    conf = (lv.configuration or (row.configuration if row else "")).replace(" ", "")
-                    if value.replace(" ", "") != conf:
-                        return False
-                else:
-                    return False
-            else:
-                hay = " ".join([lv.id, lv.label or "", lv.configuration or "",
-                                row.calc_label if row else ""]).lower()
-                if token.lower() not in hay:
-                    return False
-        return True
-
-    def refresh_levels(self) -> None:
-        table = self.query_one("#levels-table", DataTable)
-        keep = self.selected_level_id()
-        table.clear()
-        sigma = self.result.sigma if self.result and self.result.sigma else None
-        for lv, row in self.visible_levels():
-            flags = []
-            if not lv.include:
-                flags.append("excl")
-            if lv.state is not None:
-                flags.append("pin")
-            oc = Text("")
-            if row is not None:
-                q = abs(row.residual) / sigma if sigma else 0.0
-                mark = " !!" if q > 3 else (" !" if q > 2 else "")
-                style = "bold red" if q > 3 else ("yellow" if q > 2 else "")
-                oc = Text(f"{row.residual:9.2f}{mark}", style=style, justify="left")
-                if row.label_mismatch:
-                    flags.append("≠label")
-            conf = lv.configuration or (row.configuration if row else "?")
-            cells = [Text(lv.id)]
-            if self.wide_table:
-                cells.append(Text(conf))
-            cells += [
-                Text(lv.label or f"({conf})"),
-                Text(format_j(lv.J) + ("°" if lv.parity == "odd" else ""), justify="right"),
-            ]
-            if self.wide_table:
-                cells.append(Text(lv.parity))
-            cells += [
-                Text(f"{lv.energy:.3f}", justify="right"),
-                Text(f"{row.energy_calc:.3f}" if row else "…", justify="right"),
-                oc,
-                Text(f"{100 * row.purity:.0f}" if row else "", justify="right"),
-                Text(
-                    f"{100 * row.components[0][1]:.0f}% {row.components[0][0]} ({row.best_scheme})"
-                    if row and row.components else ""
-                ),
-                Text(f"{row.g_calc:.4f}" if row else "", justify="right"),
-            ]
-            if self.wide_table:
-                cells.append(Text("" if lv.g is None else f"{lv.g:.3f}", justify="right"))
-            cells.append(Text(" ".join(flags), style="dim"))
-            table.add_row(*cells, key=lv.id)
-        if keep is not None:
-            self.select_level(keep)
-
     def selected_level_id(self) -> str | None:
-        table = self.query_one("#levels-table", DataTable)
-        if table.row_count == 0:
-            return None
-        try:
-            key = table.coordinate_to_cell_key(Coordinate(table.cursor_row, 0)).row_key
-        except Exception:  # noqa: BLE001 - empty or shrinking table
-            return None
-        return key.value
+        return self.selected_id
 
     def select_level(self, level_id: str) -> None:
-        table = self.query_one("#levels-table", DataTable)
-        try:
-            table.move_cursor(row=table.get_row_index(level_id))
-        except Exception:  # noqa: BLE001 - filtered out
-            pass
+        if self.query_one(views.LevelsView).select(level_id):
+            self.selected_id = level_id
 
     def selected_parameter(self) -> str | None:
-        table = self.query_one("#params-table", DataTable)
-        if table.row_count == 0:
-            return None
-        return table.coordinate_to_cell_key(Coordinate(table.cursor_row, 0)).row_key.value
-
-    def refresh_params(self) -> None:
-        table = self.query_one("#params-table", DataTable)
-        keep = table.cursor_row if table.row_count else 0
-        table.clear()
-        r = self.result
-        for name, p in self.ws.session.parameters.items():
-            value = r.values.get(name, p.value) if r else p.value
-            status = r.status.get(name, "") if r else ("vary" if p.vary else "fixed")
-            err = ""
-            if r:
-                e = r.errors.get(name, 0.0)
-                err = {"fixed": "", "at bound": "at bound", "undetermined": "undetermined"}.get(
-                    status, f"{e:.2f}")
-            ratio = r.ratios.get(name) if r else None
-            bounds = ""
-            if p.min is not None or p.max is not None:
-                bounds = f"[{'' if p.min is None else f'{p.min:g}'}, " \
-                         f"{'' if p.max is None else f'{p.max:g}'}]"
-            setting = "vary" if p.vary else "fixed"
-            table.add_row(
-                Text(name), Text(f"{value:.2f}", justify="right"), Text(err, justify="right"),
-                Text(f"{setting} / {status}" if r and status not in ("varied", "fixed") else
-                     setting),
-                Text(p.link or ""), Text(bounds),
-                Text("" if ratio is None else f"{ratio:.3f}", justify="right"),
-                Text(r.ratio_reference.get(name, "") if r and ratio is not None else ""),
-                key=name,
-            )
-        if table.row_count:
-            table.move_cursor(row=min(keep, table.row_count - 1))
-
-    def refresh_pictures(self, force: bool = False) -> None:
-        """Redraw the pictures; those not on screen are only marked stale (drawing the
-        correlation table and plots after every fit would slow the refit down)."""
-        if not force and self._tab() not in ("corr", "resid", "diagram"):
-            self.pictures_stale = True
-            return
-        self.pictures_stale = False
-        r = self.result
-        corr = self.query_one("#corr-table", DataTable)
-        corr.clear(columns=True)
-        w = max(self.size.width - 2, 40)
-        h = max(self.size.height - 8, 10)
-        if r is None:
-            self.query_one("#resid-plot", Static).update(Text("no fit yet"))
-            self.query_one("#diagram-plot", Static).update(Text("no fit yet"))
-            return
-        names, cells = pictures.correlation_cells(r, self.ws.session.options.correlation_threshold)
-        corr.add_column("", key="name")
-        for i, n in enumerate(names):
-            corr.add_column(Text(n), key=f"c{i}")
-        for i, n in enumerate(names):
-            corr.add_row(Text(n), *cells[i], key=f"r{i}")
-        self.query_one("#resid-plot", Static).update(pictures.residual_plot(r, w, h))
-        configs = pictures.diagram_configurations(r)
-        chosen = configs[self.diagram_choice - 1] if 0 < self.diagram_choice <= len(configs) \
-            else None
-        self.query_one("#diagram-plot", Static).update(
-            pictures.level_diagram(r, w, h, configuration=chosen))
-
-    def refresh_detail(self) -> None:
-        static = self.query_one("#detail-text", Static)
-        lid = self.selected_level_id()
-        r = self.result
-        if lid is None or r is None:
-            static.update(Text("select a level" if r else "fitting…"))
-            return
-        row = self._rows_by_id().get(lid)
-        if row is None:
-            static.update(Text(f"{lid}: not attached"))
-            return
-        sol = r.solutions[row.parity]
-        lev = next(x for x in sol.levels
-                   if x.block == round(2 * row.J) and x.position == row.state_rank - 1)
-        width = 40
-        out = Text()
-        out.append(f"{row.id}  J = {format_j(row.J)}  {row.parity}\n", style="bold")
-        out.append(f"E obs {row.energy_obs:.3f}   E calc {row.energy_calc:.3f} "
-                   f"± {row.calc_uncertainty:.2f}\nO-C {row.residual:.3f}   "
-                   f"g calc {row.g_calc:.4f}")
-        out.append(f"   g obs {row.g_obs:.3f}\n" if row.g_obs is not None else "\n")
-        out.append(f"state {row.state_rank} of its J; label {row.label or '—'}\n")
-        for scheme in ("LS", "jj", "JK"):
-            comps = [(c.label, c.fraction) for c in sol.composition(lev, scheme, top=4)]
-            out.append(f"\n{scheme} coupling", style="bold underline")
-            out.append(" (best)\n" if scheme == row.best_scheme else "\n")
-            out.append(pictures.composition_bars(comps, width))
-        out.append("\nnearest computed states\n", style="bold underline")
-        near = sorted(sol.levels, key=lambda x: abs(x.energy - row.energy_calc))[1:6]
-        for x in near:
-            out.append(f"{x.energy - row.energy_calc:+9.1f}  J={format_j(x.J):>4}  {x.label}\n")
-        static.update(out)
+        return self.query_one(views.ParamsView).selected()
 
     def update_status(self) -> None:
         r = self.result
-        parts = []
-        if r is not None:
-            sig = "—" if r.sigma is None else f"{r.sigma:.3f}"
-            delta = ""
-            if r.sigma is not None and self.previous_sigma is not None:
-                delta = f" (Δ {r.sigma - self.previous_sigma:+.3f})"
-            parts.append(f"σ = {sig} cm-1{delta}")
-            parts.append(f"N = {r.n_levels}  free = {r.n_free}  eval = {r.iterations}")
-            parts.append("converged" if r.converged else "NOT CONVERGED")
+        parts: list[tuple[int, str]] = []
+        if self.ws is None and not self.fit_error:
+            parts.append((0, "loading the model…"))
         if self.fit_running:
-            parts.append("fitting…")
+            parts.append((0, "fitting…"))
         if self.fit_error:
-            parts.append(f"cannot fit: {self.fit_error}")
-        if self.ws.dirty:
-            parts.append("unsaved")
-        if self.filter_text or self.outliers_only:
-            extra = " outliers" if self.outliers_only else ""
-            parts.append(f"filter: {self.filter_text or ''}{extra}")
+            parts.append((0, f"cannot fit: {self.fit_error}"))
+        if self.ws is not None and self.ws.dirty:
+            parts.append((0, "unsaved"))
+        if r is not None:
+            sig = "σ = —" if r.sigma is None else f"σ = {r.sigma:.4g}"
+            parts.append((0, sig))
+            if r.sigma is not None and self.previous_sigma is not None:
+                parts.append((4, f"Δ {r.sigma - self.previous_sigma:+.3g}"))
+            if r.fitted and not r.converged:
+                parts.append((0, "NOT CONVERGED"))
+        n_check = views.diagnosis_count(r)
+        if n_check:
+            parts.append((1, f"check {n_check} (7)"))
+        if self.level_filter or self.outliers_only:
+            extra = " !" if self.outliers_only else ""
+            parts.append((2, f"filter {self.filter_text}{extra}"))
         if SORTS[self.sort_mode] != "energy":
-            parts.append(f"sort: {SORTS[self.sort_mode]}")
+            parts.append((3, f"sort {SORTS[self.sort_mode]}"))
         if self.message:
-            parts.append(self.message)
-        style = "bold red" if (self.fit_error or (r is not None and not r.converged)) else ""
-        self.query_one("#status", Static).update(Text("  │  ".join(parts), style=style))
+            parts.append((2, self.message))
+        if r is not None:
+            parts.append((5, f"N {r.n_levels} free {r.n_free} eval {r.iterations}"))
+        style = "bold" if (self.fit_error or (r is not None and not r.converged)) else ""
+        try:
+            status = self.query_one("#status", Static)
+        except NoMatches:
+            return
+        width = max((status.size.width or self.size.width) - 2, 20)
+        status.update(Text(pack_status(parts, width), style=style))
 
     # ------------------------------------------------------------------ events
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         if event.data_table.id == "levels-table":
             try:
-                self.refresh_detail()
+                view = self.query_one(views.LevelsView)
+                self.selected_id = view.selected_id()
+                view.draw_detail()
             except NoMatches:  # the app is closing: its widgets are gone
                 pass
 
-    # ------------------------------------------------------------------ lines view
-    def refresh_observed_lines(self) -> None:
-        """Observed lines of the selected level from the last level optimisation (O)."""
-        from finefit.reports.levelopt import paren
+    def on_tabbed_content_tab_activated(self, event: TabbedContent.TabActivated) -> None:
+        view = self._view(self.current_tab())
+        if view is not None:
+            view.shown()
+            if not isinstance(self.screen, ModalScreen):
+                view.focus_target().focus()  # also when the tab was clicked
+            self.refresh_bindings()
 
-        note = self.query_one("#obs-lines-note", Static)
-        table = self.query_one("#obs-lines-table", DataTable)
-        table.clear()
-        opt = self.level_opt
-        if opt is None:
-            note.update(Text("Observed lines: O optimises the levels from a line list.",
-                             style="dim"))
+    def on_resize(self, event) -> None:
+        self.call_after_refresh(self.update_status)  # the views follow on their own resize
+
+    def _view(self, tab: str):
+        try:
+            return self.query_one(f"#{tab}-view", views.View)
+        except NoMatches:
+            return None
+
+    # ------------------------------------------------------------------ lines worker
+    def start_lines(self) -> None:
+        if self.lines_running or self.result is None:
             return
-        lid = self.selected_level_id()
-        mine = opt.lines_of(lid) if lid else []
-        n_bad = sum("outlier" in x.flags for x in mine)
-        note.update(Text(f"{len(mine)} observed lines of {lid} in {opt.source or 'the list'}"
-                         f" (chi2/dof {opt.reduced_chi2 or 0:.2f}; {n_bad} beyond 3 σ)",
-                         style="bold yellow" if n_bad else ""))
-        for x in sorted(mine, key=lambda x: x.wavenumber):
-            z = "" if x.normalised is None else f"{x.normalised:+.1f}"
-            style = "red" if "outlier" in x.flags else ("dim" if not x.used else "")
-            table.add_row(Text(str(x.source_line)), Text(x.upper if x.lower == lid else x.lower),
-                          Text(paren(x.wavenumber, x.uncertainty)),
-                          Text(paren(x.ritz, x.ritz_uncertainty)), Text(f"{x.residual:+.4f}"),
-                          Text(z, style=style), Text(", ".join(x.flags), style=style))
-
-    def refresh_lines(self) -> None:
-        self.refresh_observed_lines()
-        note = self.query_one("#lines-note", Static)
-        table = self.query_one("#lines-table", DataTable)
-        table.clear()
+        self.lines_running = True
+        at_fit = self.ws.session.copy()
+        at_fit.apply(self.result)  # lines at the fitted values, not the start ones
+        source = None
         s = self.ws.session
-        if set(s.models) != {"even", "odd"}:
-            note.update(Text("Predicted lines need configurations of both parities in the "
-                             "session."))
-            return
-        if self.lines_cache is None or self.lines_cache[0] != self.ws.generation:
-            note.update(Text("computing line strengths (Hartree-Fock dipole integrals the "
-                             "first time)…"))
-            if not self.lines_running and self.result is not None:
-                self.lines_running = True
-                at_fit = s.copy()
-                at_fit.apply(self.result)  # lines at the fitted values, not the start ones
-                self._lines_worker(at_fit, self.ws.generation, dict(self.radial_cache))
-            return
-        lid = self.selected_level_id()
-        row = self._rows_by_id().get(lid) if lid else None
-        if row is None:
-            note.update(Text("select an attached level in the levels view"))
-            return
-        key = (row.parity, round(2 * row.J), row.state_rank - 1)
-        mine = []
-        for x in self.lines_cache[1]:
-            for a, b in ((x.lower, x.upper), (x.upper, x.lower)):
-                if (a.parity, a.block, a.position) == key:
-                    mine.append((x, b))
-        note.update(Text(f"{len(mine)} predicted lines of {row.id} (J = {format_j(row.J)}, "
-                         f"{row.parity}), strongest first. Ritz wavelengths where both "
-                         "levels are observed, else from calculated energies (other level "
-                         "shown by label); check them against the spectrum."))
-        def other_id(x, other):
-            return x.upper_id if other is x.upper else x.lower_id
-
-        for x, other in mine[:200]:
-            table.add_row(
-                Text("" if x.air_wavelength is None else f"{x.air_wavelength:.3f}"),
-                Text(f"{x.vacuum_wavelength:.3f}"), Text(f"{x.wavenumber:.2f}"),
-                Text("" if x.wavenumber_uncertainty is None else
-                     f"{x.wavenumber_uncertainty:.2f}"),
-                Text(other_id(x, other) or other.label), Text(format_j(other.J)),
-                Text(f"{x.gf:.3g}"),
-                Text(f"{x.A:.3g}"))
+        if self.level_opt is None and s.level_sets and s.level_sets[-1].source:
+            # the observed lines of the last level optimisation, read again (the list's
+            # path as written, or beside the session file)
+            last = s.level_sets[-1]
+            for cand in (Path(last.source),
+                         (s.path.parent if s.path else Path.cwd()) / last.source):
+                if cand.exists():
+                    source = (str(cand), list(last.excluded))
+                    break
+        self._lines_worker(at_fit, self.ws.generation, dict(self.radial_cache), source)
 
     @work(thread=True, exclusive=True, group="lines", exit_on_error=False)
-    def _lines_worker(self, session, generation: int, radial: dict) -> None:
+    def _lines_worker(self, session, generation: int, radial: dict, source) -> None:
         try:
             lines, used = session.predict_lines(radial)
+            opt = None
+            if source is not None:  # the observed lines of the last level optimisation
+                try:
+                    opt = session.optimise_levels(source[0], exclude=source[1])
+                except FinefitError:
+                    opt = None
         except Exception as exc:  # noqa: BLE001 - shown in the view
             self.call_from_thread(self._lines_failed, str(exc))
             return
-        self.call_from_thread(self._lines_done, generation, lines, used)
+        self.call_from_thread(self._lines_done, generation, lines, used, opt)
 
-    def _lines_done(self, generation: int, lines, used) -> None:
+    def _lines_done(self, generation: int, lines, used, opt=None) -> None:
         self.lines_running = False
         if not self.is_running:
             return
         self.radial_cache.update(used)
+        if opt is not None and self.level_opt is None:
+            self.level_opt = opt
         self.lines_cache = (generation, lines) if generation == self.ws.generation else None
-        if self._tab() == "lines":
-            self.refresh_lines()
+        if self.current_tab() == "lines":
+            self.query_one(views.LinesView).redraw()
 
     def _lines_failed(self, message: str) -> None:
         self.lines_running = False
         self.query_one("#lines-note", Static).update(Text(f"cannot predict lines: {message}",
-                                                          style="bold red"))
+                                                          style="bold"))
 
-    def on_resize(self, event) -> None:
-        if self.result is not None:
-            self.refresh_pictures()
-
-    # ------------------------------------------------------------------ helpers
-    def _modal_open(self) -> bool:
-        return isinstance(self.screen, ModalScreen)
-
-    def _tab(self) -> str:
-        return self.query_one(TabbedContent).active
-
-    def apply_edit(self, description: str, change) -> bool:
+    # ------------------------------------------------------------------ edits
+    def apply_edit(self, description: str, change, select: str | None = None) -> bool:
         """One undoable edit; a bad value changes nothing and says why."""
         try:
             self.ws.edit(description, change)
@@ -634,188 +456,20 @@ class WorkspaceApp(App):
         self.message = description
         if self.ws.journal_error:
             self.notify(self.ws.journal_error, title="not autosaved", severity="warning")
+        if select:
+            self.pending_select = select
         # the tables are redrawn once, when the new fit lands (redrawing a large table
         # costs as much as the fit itself); if the session cannot be fitted, redraw now
         self.schedule_fit()
         if not self.fit_running:
-            self.refresh_levels()
-            self.refresh_params()
+            self.redraw_views()
         return True
 
-    # ------------------------------------------------------------------ actions
-    def action_toggle_include(self) -> None:
-        if self._modal_open() or self._tab() != "levels":
-            return
-        lid = self.selected_level_id()
-        if lid is None:
-            return
-        lv = self.ws.session.level(lid)
-        self.apply_edit(f"{'excluded' if lv.include else 'included'} {lid}",
-                        lambda s: s.update_level(lid, include=not lv.include))
+    def _fit_is_current(self) -> bool:
+        return (self.result is not None and not self.fit_running
+                and self.result_generation == self.ws.generation)
 
-    def action_reattach(self) -> None:
-        if self._modal_open() or self._tab() != "levels" or self.result is None:
-            return
-        lid = self.selected_level_id()
-        if lid is None:
-            return
-        lv = self.ws.session.level(lid)
-        sol = self.result.solutions[lv.parity]
-        states = [x for x in sol.levels if x.block == round(2 * lv.J)]
-        states.sort(key=lambda x: x.position)
-        owner = {(row.state_rank): row.id for row in self.result.levels
-                 if row.parity == lv.parity and row.J == lv.J}
-        options = [Text("let the fit choose (by label, then energy order)")]
-        highlight = 0
-        for x in states:
-            comps = sol.composition(x, "LS", top=2)
-            who = owner.get(x.position + 1)
-            t = Text(f"#{x.position + 1:<3} {x.energy:11.2f}  ")
-            t.append("  ".join(f"{100 * c.fraction:.0f}% {c.label}" for c in comps))
-            if who:
-                t.append(f"   [{who}]", style="bold" if who == lid else "dim")
-                if who == lid:
-                    highlight = x.position + 1
-            options.append(t)
-
-        def chosen(index: int | None) -> None:
-            if index is None:
-                return
-            state = None if index == 0 else index
-            self.apply_edit(f"attached {lid} to state {state or 'by label'}",
-                            lambda s: s.attach(lid, state))
-
-        self.push_screen(
-            PickScreen(f"Attach {lid} (J = {format_j(lv.J)}, {lv.parity}) to:", options,
-                       highlight), chosen)
-
-    def action_edit(self) -> None:
-        if self._modal_open():
-            return
-        if self._tab() == "levels":
-            self._edit_level()
-        elif self._tab() == "params":
-            self._edit_parameter()
-
-    def _edit_level(self) -> None:
-        lid = self.selected_level_id()
-        if lid is None:
-            return
-        lv = self.ws.session.level(lid)
-        fields = [("energy", "energy (cm-1)", f"{lv.energy!r}"),
-                  ("uncertainty", "uncertainty (cm-1, empty = none)",
-                   "" if lv.uncertainty is None else f"{lv.uncertainty!r}"),
-                  ("label", "label (empty = none)", lv.label or "")]
-
-        def done(values: dict | None) -> None:
-            if values is None:
-                return
-            try:
-                energy = parse_number(values["energy"], "energy")
-                unc = parse_number(values["uncertainty"], "uncertainty", positive=True) \
-                    if values["uncertainty"].strip() else None
-            except ValueError as exc:  # FinefitError names the field
-                self.notify(str(exc), title="not changed", severity="error")
-                return
-            label = values["label"].strip() or None
-            self.apply_edit(f"edited {lid}", lambda s: s.update_level(
-                lid, energy=energy, uncertainty=unc, label=label))
-
-        self.push_screen(FormScreen(f"Edit level {lid}", fields), done)
-
-    def _edit_parameter(self) -> None:
-        name = self.selected_parameter()
-        if name is None:
-            return
-        p = self.ws.session.parameters[name]
-        fields = [("value", "value (cm-1)", f"{p.value!r}"),
-                  ("min", "lower bound (empty = none)", "" if p.min is None else f"{p.min!r}"),
-                  ("max", "upper bound (empty = none)", "" if p.max is None else f"{p.max!r}")]
-
-        def done(values: dict | None) -> None:
-            if values is None:
-                return
-            try:
-                value = parse_number(values["value"], "value")
-                lo = parse_number(values["min"], "min") if values["min"].strip() else None
-                hi = parse_number(values["max"], "max") if values["max"].strip() else None
-            except ValueError as exc:  # FinefitError names the field
-                self.notify(str(exc), title="not changed", severity="error")
-                return
-            self.apply_edit(f"edited {name}",
-                            lambda s: s.set_parameter(name, value, min=lo, max=hi))
-
-        self.push_screen(FormScreen(f"Edit {name}", fields), done)
-
-    def action_add_level(self) -> None:
-        if self._modal_open():
-            return
-        s = self.ws.session
-        fields = [("energy", "energy (cm-1)", ""), ("J", "J (e.g. 5/2)", ""),
-                  ("parity", "parity (even/odd)", next(iter(s.models))),
-                  ("configuration", "configuration (optional)", ""),
-                  ("label", "label (optional)", ""), ("uncertainty", "uncertainty (optional)", "")]
-
-        def done(values: dict | None) -> None:
-            if values is None:
-                return
-            unc = values["uncertainty"].strip()
-            try:
-                unc_v = parse_number(unc, "uncertainty", positive=True) if unc else None
-            except ValueError as exc:  # FinefitError names the field
-                self.notify(str(exc), severity="error", title="not added")
-                return
-            self.apply_edit("added a level", lambda s: s.add_level(
-                energy=values["energy"], J=values["J"], parity=values["parity"].strip(),
-                configuration=values["configuration"].strip() or None,
-                label=values["label"].strip() or None, uncertainty=unc_v))
-
-        self.push_screen(FormScreen("Add an observed level", fields), done)
-
-    def action_delete_level(self) -> None:
-        if self._modal_open() or self._tab() != "levels":
-            return
-        lid = self.selected_level_id()
-        if lid is None:
-            return
-
-        def answer(a: str | None) -> None:
-            if a == "y":
-                self.apply_edit(f"deleted {lid}", lambda s: s.remove_level(lid))
-
-        self.push_screen(ChoiceScreen(f"Delete level {lid}? (undo brings it back)",
-                                      [("y", "delete"), ("n", "keep")]), answer)
-
-    def action_toggle_vary(self) -> None:
-        if self._modal_open() or self._tab() != "params":
-            return
-        name = self.selected_parameter()
-        if name is None:
-            return
-        vary = not self.ws.session.parameters[name].vary
-        self.apply_edit(f"{'varying' if vary else 'fixed'} {name}",
-                        lambda s: s.set_parameter(name, vary=vary))
-
-    def action_link(self) -> None:
-        if self._modal_open() or self._tab() != "params":
-            return
-        name = self.selected_parameter()
-        if name is None:
-            return
-        p = self.ws.session.parameters[name]
-
-        def done(values: dict | None) -> None:
-            if values is None:
-                return
-            group = values["group"].strip() or None
-            self.apply_edit(f"{name} {'in link group ' + group if group else 'unlinked'}",
-                            lambda s: s.set_parameter(name, link=group))
-
-        self.push_screen(FormScreen(f"Link group of {name}", [
-            ("group", "group name (empty = not linked)", p.link or "")],
-            note="Parameters of one group vary together, keeping the ratios they have "
-                 "when the fit starts."), done)
-
+    # ------------------------------------------------------------------ history, files
     def action_undo(self) -> None:
         self._step_history(self.ws.undo, "undone", "nothing to undo")
 
@@ -823,32 +477,51 @@ class WorkspaceApp(App):
         self._step_history(self.ws.redo, "redone", "nothing to redo")
 
     def _step_history(self, step, done_word: str, nothing: str) -> None:
-        if self._modal_open():
-            return
+        before = {lv.id for lv in self.ws.session.levels}
         d = step()
         self.message = f"{done_word}: {d}" if d else nothing
         if d:
+            back = [lv.id for lv in self.ws.session.levels if lv.id not in before]
+            self.pending_select = back[0] if back else self.selected_id
             self.schedule_fit()  # the tables are redrawn when the fit lands
+            if not self.fit_running:
+                self.redraw_views()
         else:
             self.update_status()
 
     def action_refit(self) -> None:
-        if not self._modal_open():
-            self.schedule_fit()
+        self.schedule_fit()
 
-    def action_save(self) -> None:
-        if self._modal_open():
-            return
+    def _write(self) -> bool:
+        """Write the session with the fit on screen: its values become the session's,
+        the values they replace are kept as a parameter set (undoable)."""
+        note = ""
+        if self._fit_is_current() and self.result.fitted and self.result.converged:
+            result = self.result
+            if any(self.ws.session.parameters[n].value != v
+                   for n, v in result.values.items() if n in self.ws.session.parameters):
+                try:
+                    self.ws.edit("took the fitted values for writing",
+                                 lambda s: s.take_fit(result))
+                except FinefitError as exc:
+                    self.notify(str(exc), title="not saved", severity="error")
+                    return False
+                self.result_generation = self.ws.generation  # same values: still current
+                note = " with the fitted values (the previous ones kept as a set)"
+        elif self.result is not None:
+            note = " with the starting values (the fit on screen is not current or not " \
+                   "converged)"
         try:
             p = self.ws.save()
         except FileChangedError as exc:
             self._ask_changed_on_disk(exc.recovery)
-            return
+            return False
         except (FinefitError, OSError) as exc:
             self.notify(str(exc), title="not saved", severity="error")
-            return
-        self.message = f"saved {p.name}"
+            return False
+        self.message = f"saved {p.name}{note}"
         self.update_status()
+        return True
 
     def _ask_changed_on_disk(self, rec: Recovery) -> None:
         """The file changed since it was read: overwrite it, merge its changes, or cancel."""
@@ -867,160 +540,87 @@ class WorkspaceApp(App):
                 self.notify(str(exc), title="not saved", severity="error")
                 return
             self.message = f"saved {p.name}" + (" (with the file's changes)" if a == "b" else "")
-            self.refresh_all()
+            self.redraw_views()
             self.schedule_fit()
 
         self.push_screen(ChoiceScreen("\n".join(lines),
                                       [("b", "merge them, then save"), ("o", "overwrite"),
                                        ("c", "cancel")]), answer)
 
-    def action_keep_set(self) -> None:
-        if self._modal_open() or self.result is None:
-            return
-        result = self.result
+    def action_save(self) -> None:
+        self._write()
 
-        def done(values: dict | None) -> None:
-            if values is None:
-                return
-            name = values["name"].strip()
-            self.apply_edit(f"kept set {name!r}", lambda s: s.keep(result, name))
+    # ------------------------------------------------------------------ actions: display
+    def set_filter(self, text: str) -> bool:
+        """Use a filter; a term that cannot be read is reported and changes nothing."""
+        try:
+            self.level_filter = parse_filter(text)
+        except FinefitError as exc:
+            self.notify(str(exc), title="filter not changed", severity="error", timeout=8)
+            return False
+        self._redraw_levels()
+        return True
 
-        self.push_screen(FormScreen("Keep the current fit as a parameter set",
-                                    [("name", "name", "")]), done)
-
-    def action_adopt_fit(self) -> None:
-        if self._modal_open() or self.result is None:
-            return
-        result = self.result
-        self.apply_edit("adopted the fitted values", lambda s: s.apply(result))
-
-    def action_optimise_levels(self) -> None:
-        if self._modal_open():
-            return
-        s = self.ws.session
-        last = s.level_sets[-1] if s.level_sets else None
-        start = last.source if last else ""
-        skip = ", ".join(str(x) for x in last.excluded) if last else ""
-
-        def done(values: dict | None) -> None:
-            if values is None:
-                return
-            try:
-                exclude = [int(x) for x in values["exclude"].replace(",", " ").split()]
-            except ValueError:
-                self.notify("file lines to keep out must be whole numbers", severity="error")
-                return
-            try:
-                opt = s.optimise_levels(values["path"].strip(), exclude=exclude)
-            except FinefitError as exc:
-                self.notify(str(exc), title="not optimised", severity="error", timeout=8)
-                return
-            if self.apply_edit(f"levels optimised from {opt.source}",
-                               lambda sess: sess.apply_levels(opt)):
-                self.level_opt = opt
-                n_bad = sum("outlier" in x.flags and x.used for x in opt.lines)
-                red = opt.reduced_chi2
-                self.notify(f"{len(opt.levels)} levels from {opt.n_used} lines; chi2/dof "
-                            f"{'—' if red is None else f'{red:.2f}'}; {n_bad} line(s) beyond "
-                            "3 σ (lines view: 6)", timeout=8)
-
-        self.push_screen(FormScreen(
-            "Optimise the levels from a line list", [("path", "line list", start),
-                                                     ("exclude", "file lines kept out", skip)],
-            note="Energies and uncertainties of every level with lines are replaced "
-                 "(u undoes it)."), done)
-
-    def action_load_set(self) -> None:
-        if self._modal_open():
-            return
-        sets = self.ws.session.parameter_sets
-        if not sets:
-            self.notify("no saved parameter sets yet (k keeps the current fit)")
-            return
-        options = [Text(f"{ps.name}   σ = {ps.sigma if ps.sigma is None else f'{ps.sigma:.3f}'}"
-                        f"   N = {ps.n_levels}   free = {ps.n_free}   {ps.created}")
-                   for ps in sets]
-
-        def chosen(i: int | None) -> None:
-            if i is None:
-                return
-            name = sets[i].name
-            self.apply_edit(f"started from set {name!r}", lambda s: s.use_set(name))
-
-        self.push_screen(PickScreen("Start from a saved parameter set:", options), chosen)
+    def _redraw_levels(self) -> None:
+        self.query_one(views.LevelsView).redraw()
+        self.update_status()
 
     def action_filter(self) -> None:
-        if self._modal_open():
-            return
-
         def done(values: dict | None) -> None:
-            if values is None:
-                return
-            self.filter_text = values["filter"].strip()
-            self.refresh_levels()
-            self.update_status()
+            if values is not None:
+                self.set_filter(values["filter"].strip())
 
-        self.push_screen(FormScreen("Filter levels", [("filter", "filter", self.filter_text)],
-                                    note="Words match id, label or configuration; also "
-                                         "c=3d7  J=5/2  p=odd. Empty shows all."), done)
+        self.push_screen(FormScreen(
+            "Filter levels", [("filter", "filter", self.filter_text)],
+            note="Words match id, label or configuration; c=3d6 4s  J=7/2,9/2  p=odd  "
+                 "id=L001,L002  e>20000  e=0..5000  oc>5  oc>2s  is=excluded|pinned|"
+                 "mismatch|outlier. Empty shows all."), done)
 
     def action_toggle_outliers(self) -> None:
-        if self._modal_open():
-            return
         self.outliers_only = not self.outliers_only
-        self.refresh_levels()
-        self.update_status()
+        self._redraw_levels()
 
     def action_cycle_sort(self) -> None:
-        if self._modal_open():
-            return
         self.sort_mode = (self.sort_mode + 1) % len(SORTS)
-        self.refresh_levels()
+        view = self.query_one(views.LevelsView)
+        view.redraw()
+        if view.table.row_count:
+            view.table.move_cursor(row=0)  # the first rows are the point of sorting
+            view.table.scroll_home(animate=False)
+            self.selected_id = view.selected_id()
         self.update_status()
 
-    def _apply_detail_visibility(self) -> None:
-        self.query_one("#detail").display = self.detail_visible
-
     def action_toggle_detail(self) -> None:
-        if self._modal_open():
-            return
         self.detail_visible = not self.detail_visible
-        self._apply_detail_visibility()
-        self.refresh_detail()
-
-    def on_tabbed_content_tab_activated(self, event: TabbedContent.TabActivated) -> None:
-        if self.pictures_stale and self._tab() in ("corr", "resid", "diagram"):
-            self.refresh_pictures(force=True)
+        self.query_one(views.LevelsView).redraw()
 
     def action_show_tab(self, name: str) -> None:
-        if self._modal_open():
-            return
         self.query_one(TabbedContent).active = name
-        if self.pictures_stale and name in ("corr", "resid", "diagram"):
-            self.refresh_pictures(force=True)
-        if name == "params":
-            self.query_one("#params-table").focus()
-        elif name == "levels":
-            self.query_one("#levels-table").focus()
-        elif name == "corr":
-            self.query_one("#corr-table").focus()
-        elif name == "lines":
-            self.query_one("#lines-table").focus()  # focus in another pane would switch back
-            self.refresh_lines()
+        view = self._view(name)
+        if view is not None:
+            view.shown()
+            # the view takes the focus: focus left in a hidden pane would switch back
+            view.focus_target().focus()
+        self.refresh_bindings()
 
     def action_cycle_diagram(self) -> None:
-        if self._modal_open() or self.result is None:
+        if self.result is None:
             return
-        n = len(pictures.diagram_configurations(self.result))
+        n = len(views.pictures.diagram_configurations(self.result))
         self.diagram_choice = (self.diagram_choice + 1) % (n + 1)
-        self.refresh_pictures(force=True)
+        self.query_one(views.DiagramView).redraw()
 
     def action_help(self) -> None:
         if not isinstance(self.screen, HelpScreen):
             self.push_screen(HelpScreen())
 
+    async def action_quit(self) -> None:
+        """ctrl+q and the palette's Quit ask about unsaved changes like q."""
+        self.action_quit_workspace()
+
     def action_quit_workspace(self) -> None:
-        if self._modal_open():
+        if self.ws is None:
+            self.exit()
             return
         if not self.ws.dirty:
             self.ws.discard_journal()
@@ -1029,38 +629,43 @@ class WorkspaceApp(App):
 
         def answer(a: str | None) -> None:
             if a == "s":
-                try:
-                    self.ws.save()
-                except FileChangedError as exc:
-                    self._ask_changed_on_disk(exc.recovery)
-                    return
-                except (FinefitError, OSError) as exc:
-                    self.notify(str(exc), title="not saved", severity="error")
-                    return
-                self.exit()
+                if self._write():
+                    self.exit()
             elif a == "d":
                 self.ws.discard_journal()
                 self.exit()
 
-        self.push_screen(ChoiceScreen("There are unsaved changes. Save before leaving?",
-                                      [("s", "save and quit"), ("d", "discard and quit"),
+        self.push_screen(ChoiceScreen("There are unsaved changes. Write them before leaving?",
+                                      [("s", "write and quit"), ("d", "discard and quit"),
                                        ("c", "cancel")]), answer)
 
     def get_system_commands(self, screen):
-        yield from super().get_system_commands(screen)
+        ours = {c.title for c in COMMANDS}
+        for cmd in super().get_system_commands(screen):
+            if cmd.title not in ours:  # our Keys and Quit replace the built-in ones
+                yield cmd
         for c in COMMANDS:
             yield SystemCommand(c.title, c.help, partial(self.run_action, c.action))
 
 
-def make_app(path: str | Path) -> WorkspaceApp:
-    """The workspace for one session file (used by the command line and the tests)."""
+def make_app(path: str | Path, deferred: bool = False) -> WorkspaceApp:
+    """The workspace for one session file (used by the command line and the tests).
+
+    ``deferred`` (the command line): the file is only read and checked here, the
+    levels are on screen at once and the models are built in a thread."""
     p = Path(path)
     pending = Workspace.pending_recovery(p)
     if not p.exists() and pending is None:
         raise FinefitError(f"session file {quote(str(p))} does not exist", str(p))
+    if deferred and pending is None:
+        from finefit.storage.atomic import read_text
+        from finefit.storage.session_file import parse_session
+
+        return WorkspaceApp(None, preview=parse_session(read_text(p, "session file"),
+                                                        source=str(p)), path=p)
     if p.exists() and (pending is None or pending.file_error is None):
         ws = Workspace(Session.load(p))
-    elif pending is not None:  # the file is missing or unreadable: start from the journal
+    else:  # the file is missing or unreadable: start from the journal
         ws, _ = pending.keep("journal")
         if not p.exists():
             pending = None

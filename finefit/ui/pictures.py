@@ -15,15 +15,19 @@ from finefit.fitting.results import FitResult
 from finefit.notation.jvalues import format_j
 
 
-def residual_plot(r: FitResult, width: int, height: int) -> Text:
-    """O-C (cm-1) against observed energy; excluded levels as 'x', |O-C| > 3 sigma as '#'."""
+def residual_plot(r: FitResult, width: int, height: int, selected: str | None = None,
+                  color: bool = True) -> Text:
+    """O-C (cm-1) against observed energy; excluded levels as 'x', |O-C| > 2 sigma as '+',
+    > 3 sigma as '#', the selected level as '@' (named below the plot with the outliers)."""
     rows = r.levels
     if not rows:
         return Text("no observed levels")
     width = max(width, 30)
-    height = max(height, 8)
+    height = max(height, 9)
     left = 10
-    pw, ph = width - left - 1, height - 3
+    pw, ph = width - left - 1, height - 5
+    if ph % 2 == 0:
+        ph -= 1  # an odd number of rows puts the zero line exactly on a row
     e = np.array([row.energy_obs for row in rows])
     oc = np.array([row.residual for row in rows])
     lim = max(float(np.max(np.abs(oc))), 1e-9) * 1.1
@@ -31,31 +35,45 @@ def residual_plot(r: FitResult, width: int, height: int) -> Text:
     span = max(emax - emin, 1e-9)
     grid = [[" "] * pw for _ in range(ph)]
     styles = [[""] * pw for _ in range(ph)]
-    zero = int(round((ph - 1) / 2))
+    zero = (ph - 1) // 2
     for x in range(pw):
         grid[zero][x] = "─"
-        styles[zero][x] = "dim"
+        styles[zero][x] = "dim" if color else ""
     sigma = r.sigma or 0.0
+    marks = []
     for row, ei, oi in zip(rows, e, oc, strict=True):
         x = int(round((ei - emin) / span * (pw - 1)))
         y = int(round((1 - (oi + lim) / (2 * lim)) * (ph - 1)))
         y = min(max(y, 0), ph - 1)
+        if row.id == selected:
+            continue
         if not row.included:
             ch, st = "x", "dim"
         elif sigma and abs(oi) > 3 * sigma:
             ch, st = "#", "bold red"
+            marks.append(row)
         elif sigma and abs(oi) > 2 * sigma:
             ch, st = "+", "yellow"
         else:
             ch, st = "o", "cyan"
         grid[y][x] = ch
-        styles[y][x] = st
+        styles[y][x] = st if color else ("bold" if ch == "#" else "")
+    chosen = next((row for row in rows if row.id == selected), None)
+    if chosen is not None:
+        x = int(round((chosen.energy_obs - emin) / span * (pw - 1)))
+        y = int(round((1 - (chosen.residual + lim) / (2 * lim)) * (ph - 1)))
+        grid[min(max(y, 0), ph - 1)][x] = "@"
+        styles[min(max(y, 0), ph - 1)][x] = "bold reverse"
     out = Text()
-    out.append("O-C (cm-1) against E obs (cm-1)   o fitted  + >2σ  # >3σ  x excluded\n",
+    out.append("O-C (cm-1) against E obs   o fitted  + >2σ  # >3σ  x excluded  @ selected\n",
                style="bold")
     for y in range(ph):
-        val = lim - 2 * lim * y / max(ph - 1, 1)
-        label = f"{val:9.1f} " if y in (0, zero, ph - 1) else " " * left
+        if y == zero:
+            label = f"{0.0:9.1f} "
+        elif y in (0, ph - 1):
+            label = f"{lim - 2 * lim * y / (ph - 1):+9.1f} "
+        else:
+            label = " " * left
         out.append(label[:left])
         out.append("│")
         for x in range(pw):
@@ -63,7 +81,16 @@ def residual_plot(r: FitResult, width: int, height: int) -> Text:
         out.append("\n")
     out.append(" " * left + "└" + "─" * pw + "\n")
     lo, hi = f"{emin:.0f}", f"{emax:.0f}"
-    out.append(" " * (left + 1) + lo + " " * max(pw - len(lo) - len(hi), 1) + hi)
+    out.append(" " * (left + 1) + lo + " " * max(pw - len(lo) - len(hi), 1) + hi + "\n")
+    if chosen is not None:
+        out.append(f"@ {chosen.id}  E obs {chosen.energy_obs:.3f}  O-C {chosen.residual:+.3f}"
+                   f"  {chosen.label or chosen.calc_label}   (← → move)", style="bold")
+    else:
+        out.append("← → select a level")
+    if marks:
+        marks.sort(key=lambda row: -abs(row.residual))
+        out.append("\n# " + "  ".join(f"{m.id} {m.residual:+.2f}" for m in marks[:8])
+                   + ("  …" if len(marks) > 8 else ""))
     return out
 
 
@@ -105,21 +132,22 @@ def level_diagram(r: FitResult, width: int, height: int, configuration: str | No
     emin, emax = min(energies), max(energies)
     span = max(emax - emin, 1e-9)
     left = 9
-    colw = max(5, min(9, (width - left) // max(len(keys), 1)))
-    keys = keys[: max((width - left) // colw, 1)]
-    ph = max(height - 4, 6)
-    grid = [[" "] * (colw * len(keys)) for _ in range(ph)]
-    styles = [[""] * (colw * len(keys)) for _ in range(ph)]
+    # columns as wide as the screen allows (at least 3: calc and obs marks side by side)
+    colw = max(3, min(9, (width - left) // max(len(keys), 1)))
+    shown = keys[: max((width - left) // colw, 1)]
+    ph = max(height - 5, 6)
+    grid = [[" "] * (colw * len(shown)) for _ in range(ph)]
+    styles = [[""] * (colw * len(shown)) for _ in range(ph)]
     marks = {"calc": ("─", "cyan"), "obs": ("━", "bold"), "excl": ("┄", "dim"),
              "pred": ("╌", "magenta")}
-    for c, key in enumerate(keys):
+    for c, key in enumerate(shown):
         for e, kind in sorted(columns[key], key=lambda t: t[1] != "obs"):
             y = int(round((1 - (e - emin) / span) * (ph - 1)))
             ch, st = marks[kind]
             x0 = c * colw
-            half = (colw - 1) // 2
+            half = max((colw - 1) // 2, 1)
             xs = range(x0, x0 + half) if kind in ("calc", "pred") else range(
-                x0 + half, x0 + colw - 1)
+                x0 + half, max(x0 + colw - 1, x0 + half + 1))
             for x in xs:
                 grid[y][x] = ch
                 styles[y][x] = st
@@ -132,25 +160,37 @@ def level_diagram(r: FitResult, width: int, height: int, configuration: str | No
         for x in range(len(grid[y])):
             out.append(grid[y][x], style=styles[y][x] or None)
         out.append("\n")
-    out.append("       J ")
-    for key in keys:
-        out.append(format_j(key[1]).ljust(colw)[:colw])
+    jt = [format_j(k[1]) for k in shown]
+    if all(len(t) < colw for t in jt):
+        out.append("       J " + "".join(t.ljust(colw) for t in jt))
+    else:  # narrow columns: J values alternate between two rows
+        rows = ["", ""]
+        for i, t in enumerate(jt):
+            rows[i % 2] = rows[i % 2].ljust(i * colw) + t
+        out.append("       J " + rows[0] + "\n         " + rows[1])
+    # each configuration's name spans its own columns
     out.append("\n" + " " * left)
-    previous = None
-    for key in keys:
-        name = key[0] if key[0] != previous else ""
-        previous = key[0]
-        out.append(("▏" + name if name else "").ljust(colw)[:colw], style="bold")
-    if len(keys) < len(columns):
-        out.append("\n(more columns than fit: c shows one configuration at a time)", style="dim")
+    pos = 0
+    while pos < len(shown):
+        conf = shown[pos][0]
+        n = 1
+        while pos + n < len(shown) and shown[pos + n][0] == conf:
+            n += 1
+        span_w = n * colw
+        name = conf if len(conf) + 1 <= span_w else conf[: max(span_w - 2, 1)] + "…"
+        out.append(("▏" + name).ljust(span_w)[:span_w], style="bold")
+        pos += n
+    if len(shown) < len(keys):
+        missing = sorted({k[0] for k in keys[len(shown):]}, key=order.index)
+        out.append(f"\n(not shown for lack of width: {', '.join(missing)}; c shows one "
+                   "configuration at a time)", style="dim")
     return out
 
 
 def correlation_cells(r: FitResult, threshold: float) -> tuple[list[str], list[list[Text]]]:
-    """Short names and coloured cells of the correlation matrix; strong ones marked '*'."""
+    """Full parameter names (configuration kept: three E_av of three configurations
+    differ) and coloured cells of the correlation matrix; strong ones marked '*'."""
     names, corr = r.correlation
-    short = [n.split(": ", 1)[-1] if ": " in n else n for n in names]
-    short = [s if len(s) <= 14 else s[:13] + "…" for s in short]
     cells = []
     for i in range(len(names)):
         row = []
@@ -163,7 +203,7 @@ def correlation_cells(r: FitResult, threshold: float) -> tuple[list[str], list[l
             style = _heat(rho, i == j)
             row.append(Text(f"{rho:+.2f}{'*' if strong else ' '}", style=style))
         cells.append(row)
-    return short, cells
+    return list(names), cells
 
 
 def _heat(rho: float, diagonal: bool) -> str:
@@ -180,9 +220,15 @@ def _heat(rho: float, diagonal: bool) -> str:
 
 
 def composition_bars(components: list[tuple[str, float]], width: int) -> Text:
-    """Horizontal bars of percentage composition."""
+    """Horizontal bars of percentage composition. A label that names two different basis
+    states (jj labels do not carry every intermediate coupling) is numbered [1], [2] so
+    the two components are not read as one."""
     out = Text()
     barw = max(width - 8, 6)
+    counts: dict[str, int] = {}
+    for label, _ in components:
+        counts[label] = counts.get(label, 0) + 1
+    seen: dict[str, int] = {}
     for label, frac in components:
         n = int(round(frac * barw))
         out.append(f"{100 * frac:5.1f}% ")
@@ -190,5 +236,8 @@ def composition_bars(components: list[tuple[str, float]], width: int) -> Text:
         out.append("░" * (barw - n), style="dim")
         out.append("\n   ")
         out.append(label)
+        if counts[label] > 1:
+            seen[label] = seen.get(label, 0) + 1
+            out.append(f" [{seen[label]}]")
         out.append("\n")
     return out
