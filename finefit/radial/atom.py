@@ -8,11 +8,11 @@ from scipy import linalg
 from finefit.errors import FinefitError
 from finefit.notation.configuration import Configuration, parse_configuration
 from finefit.radial._config import FullConfiguration, Shell, check_z, complete_configuration
-from finefit.radial._threads import single_threaded_blas
 from finefit.radial.grid import DEFAULT_STEP, DEFAULT_X_MIN, RadialGrid, make_grid
 from finefit.radial.result import HartreeFockResult
 from finefit.radial.solver import HartreeFockSolver, deflated_eigh, operator_shift
 from finefit.radial.units import HARTREE_CM
+from finefit.threads import engine_threads
 
 
 def _r_max(shells: tuple[Shell, ...], net_charge: int) -> float:
@@ -66,14 +66,14 @@ def hartree_fock(
     ``err.item``) and when the iteration does not converge.
 
     While it runs, OpenBLAS is capped at one thread (restored afterwards): the matrices
-    are small and threaded BLAS is much slower on a busy machine (see ``_threads``).
+    are small and threaded BLAS is much slower on a busy machine (see ``finefit.threads``).
     """
     Z, charge = check_z(Z, charge)
     _check_options(grid_step, tolerance, max_iterations)
     if r_max is not None and not (isinstance(r_max, (int, float)) and r_max > 1.0):
         raise FinefitError(f"r_max={r_max!r} must be a number of bohr larger than 1", "r_max")
     full = complete_configuration(configuration, Z, charge)
-    with single_threaded_blas():
+    with engine_threads():
         return _solve(full, Z, charge, bool(relativistic), float(grid_step), r_max,
                       float(tolerance), int(max_iterations))  # fmt: skip
 
@@ -99,7 +99,7 @@ def _solve(
         ) from err
 
     def solve_other(other: FullConfiguration) -> HartreeFockResult:
-        with single_threaded_blas():
+        with engine_threads():
             return _solve(other, Z, Z - other.n_electrons, relativistic, grid_step, r_max,
                           tolerance, max_iterations)  # fmt: skip
 
@@ -137,7 +137,7 @@ def hydrogenic(
     )
     full = FullConfiguration(written, shells)
     extent = _r_max(shells, Z - 1) if r_max is None else float(r_max)
-    with single_threaded_blas():
+    with engine_threads():
         return _hydrogenic(full, Z, make_grid(Z, extent, h=grid_step, x_min=DEFAULT_X_MIN))
 
 
