@@ -180,7 +180,6 @@ class TwoBodyTerms:
 
 def two_body(block: DeterminantBlock, terms: TwoBodyTerms) -> list[sp.csr_matrix]:
     """One matrix per term type of the two-body operator within a block."""
-    n_types = terms.weights.shape[1]
     rows, cols, term_idx, signs = [], [], [], []
     one = np.uint64(1)
     dets = block.dets
@@ -210,15 +209,29 @@ def two_body(block: DeterminantBlock, terms: TwoBodyTerms) -> list[sp.csr_matrix
         cols.append(sel[r_i])
         term_idx.append(chunk[t_i])
         signs.append(s2[r_i, t_i])
-    out = []
+    return term_matrices(block.size, terms.weights, rows, cols, term_idx, signs)
+
+
+def term_matrices(
+    size: int,
+    weights: np.ndarray,
+    rows: list[np.ndarray],
+    cols: list[np.ndarray],
+    term_idx: list[np.ndarray],
+    signs: list[np.ndarray],
+) -> list[sp.csr_matrix]:
+    """One sparse matrix per term type from the (row, column, term, fermion sign) pieces
+    that applying a many-body operator's terms to a block's determinants gives."""
+    n_types = weights.shape[1]
     if not rows:
-        return [sp.csr_matrix((block.size, block.size)) for _ in range(n_types)]
+        return [sp.csr_matrix((size, size)) for _ in range(n_types)]
     rows_a = np.concatenate(rows)
     cols_a = np.concatenate(cols)
     term_a = np.concatenate(term_idx)
     sign_a = np.where(np.concatenate(signs) == 1, -1.0, 1.0)
+    out = []
     for t in range(n_types):
-        w = terms.weights[term_a, t] * sign_a
+        w = weights[term_a, t] * sign_a
         nz = w != 0.0
-        out.append(sp.csr_matrix((w[nz], (rows_a[nz], cols_a[nz])), shape=(block.size, block.size)))
+        out.append(sp.csr_matrix((w[nz], (rows_a[nz], cols_a[nz])), shape=(size, size)))
     return out

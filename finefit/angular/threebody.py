@@ -49,9 +49,12 @@ import numpy as np
 from finefit.angular.determinants import (
     DeterminantBlock,
     SpinOrbitals,
+    _below,
     one_body,
     shell_determinants,
+    term_matrices,
 )
+from finefit.angular.determinants import _popcount_parity as _parity
 from finefit.angular.operators import _unit_tensor
 from finefit.angular.wigner import three_j2
 from finefit.errors import FinefitError
@@ -85,14 +88,6 @@ class ThreeBodyTerms:
     weights: np.ndarray  # (n_terms, n_types)
 
 
-def _parity(x: np.ndarray) -> np.ndarray:
-    return (np.bitwise_count(x) & 1).astype(np.int8)
-
-
-def _below(i) -> np.ndarray:
-    return (np.left_shift(np.uint64(1), np.asarray(i, dtype=np.uint64))) - np.uint64(1)
-
-
 def three_body(
     block: DeterminantBlock, terms: ThreeBodyTerms, chunk: int = 256
 ) -> list[sp.csr_matrix]:
@@ -102,7 +97,6 @@ def three_body(
     orbitals below); creation a+_c, a+_b, a+_a adds them back in that order. Vectorised
     over (determinant, term) pairs, ``chunk`` terms at a time.
     """
-    n_types = terms.weights.shape[1]
     one = np.uint64(1)
     dets = block.dets
     u = {x: getattr(terms, x).astype(np.uint64) for x in "abcdef"}
@@ -131,20 +125,7 @@ def three_body(
         cols.append(i_det[found])
         term_idx.append(i_t[found])
         signs.append(sign[found])
-    if not rows:
-        return [sp.csr_matrix((block.size, block.size)) for _ in range(n_types)]
-    rows_a = np.concatenate(rows)
-    cols_a = np.concatenate(cols)
-    term_a = np.concatenate(term_idx)
-    sign_a = np.where(np.concatenate(signs) == 1, -1.0, 1.0)
-    out = []
-    for t in range(n_types):
-        w = terms.weights[term_a, t] * sign_a
-        nz = w != 0.0
-        out.append(
-            sp.csr_matrix((w[nz], (rows_a[nz], cols_a[nz])), shape=(block.size, block.size))
-        )
-    return out
+    return term_matrices(block.size, terms.weights, rows, cols, term_idx, signs)
 
 
 # ----------------------------------------------------------------- the operators on l^3
