@@ -346,3 +346,25 @@ def subshell_casimir_terms(
     arr = np.array([r[:4] for r in rows], dtype=np.int64)
     w = np.array([[r[4]] for r in rows])
     return one, normalise_two_body(arr[:, 0], arr[:, 1], arr[:, 2], arr[:, 3], w)
+
+
+def split_degenerate(op: np.ndarray, R: np.ndarray, groups: list[np.ndarray]) -> list[np.ndarray]:
+    """Diagonalise ``op`` inside each group of still-degenerate columns of ``R`` (in place).
+
+    Returns the finer groups: columns whose eigenvalues agree within 1e-6 (the operators
+    used here have quantised eigenvalues, differences >= 1e-3) stay together.
+    """
+    new_groups = []
+    for g in groups:
+        if g.size == 1:
+            new_groups.append(g)
+            continue
+        sub = R[:, g].T @ op @ R[:, g]
+        w, U = np.linalg.eigh((sub + sub.T) / 2)
+        R[:, g] = R[:, g] @ U
+        start = 0
+        for i in range(1, g.size + 1):
+            if i == g.size or w[i] - w[i - 1] > 1e-6:
+                new_groups.append(g[start:i])
+                start = i
+    return new_groups

@@ -55,7 +55,7 @@ from finefit.angular.determinants import (
     term_matrices,
 )
 from finefit.angular.determinants import _popcount_parity as _parity
-from finefit.angular.operators import _unit_tensor
+from finefit.angular.operators import _unit_tensor, split_degenerate
 from finefit.angular.wigner import three_j2
 from finefit.errors import FinefitError
 from finefit.lazy import lazy_module
@@ -254,16 +254,7 @@ def subshell_three_body(l: int) -> SubshellThreeBody:
         images = [_casimir_superoperator(U, ranks, scale, G, b) for b in mats]
         M = np.array([[np.sum(a * b) for b in images] for a in mats])
         M = (M + M.T) / 2
-        new_groups = []
-        for g in groups_idx:  # split each degenerate space of the previous Casimir
-            w, V = np.linalg.eigh(R[:, g].T @ M @ R[:, g])
-            R[:, g] = R[:, g] @ V
-            start = 0
-            for i in range(1, g.size + 1):
-                if i == g.size or w[i] - w[i - 1] > 1e-6:
-                    new_groups.append(g[start:i])
-                    start = i
-        groups_idx = new_groups
+        groups_idx = split_degenerate(M, R, groups_idx)  # within the previous Casimir's spaces
         values.append(np.sum(R * (M @ R), axis=0))
     table = F_SHELL_LABELS if l == 3 else D_SHELL_LABELS
     w_values = {w: _so_casimir(w, l) for w, _ in table.values()}

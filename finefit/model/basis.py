@@ -34,6 +34,7 @@ from finefit.angular.operators import (
     lower,
     lplus_terms,
     pairing_terms,
+    split_degenerate,
     splus_terms,
     subshell_casimir_terms,
 )
@@ -689,28 +690,6 @@ class Basis:
     def integral_class_name(self, cls: IntegralClass) -> str:
         n = self.shell_names
         return f"R{cls.k}({n[cls.pair1[0]]}{n[cls.pair1[1]]};{n[cls.pair2[0]]}{n[cls.pair2[1]]})"
-
-
-def split_degenerate(op: np.ndarray, R: np.ndarray, groups: list[np.ndarray]) -> list[np.ndarray]:
-    """Diagonalise ``op`` inside each group of still-degenerate columns of ``R`` (in place).
-
-    Returns the finer groups: columns whose eigenvalues agree within 1e-6 (the operators
-    used here have quantised eigenvalues, differences >= 1e-3) stay together.
-    """
-    new_groups = []
-    for g in groups:
-        if g.size == 1:
-            new_groups.append(g)
-            continue
-        sub = R[:, g].T @ op @ R[:, g]
-        w, U = np.linalg.eigh((sub + sub.T) / 2)
-        R[:, g] = R[:, g] @ U
-        start = 0
-        for i in range(1, g.size + 1):
-            if i == g.size or w[i] - w[i - 1] > 1e-6:
-                new_groups.append(g[start:i])
-                start = i
-    return new_groups
 
 
 def _lookup(x: float, table: dict[tuple[int, ...], float], what: str) -> tuple[int, ...]:

@@ -20,6 +20,7 @@ from finefit.angular.operators import (
     lplus_terms,
     lz_terms,
     pairing_terms,
+    split_degenerate,
     splus_terms,
     sz_terms,
 )
@@ -31,7 +32,6 @@ from finefit.model.basis import (
     _casimir_value2,
     _p_seniority,
     _seniority,
-    split_degenerate,
 )
 from finefit.model.solution import lande_g_ls
 from finefit.notation.jvalues import format_angular

@@ -29,6 +29,12 @@ class View(Container):
     TAB = ""
     stale = True
 
+    def __init_subclass__(cls, **kwargs) -> None:
+        # every view draws itself: a view class without its own draw() is a mistake
+        super().__init_subclass__(**kwargs)
+        if "draw" not in cls.__dict__:
+            raise TypeError(f"{cls.__name__} must define draw()")
+
     def on_fit_finished(self, message: FitFinished) -> None:
         self.stale = True
         if self.app.current_tab() == self.TAB:
@@ -48,8 +54,8 @@ class View(Container):
         if self.stale:
             self.redraw()
 
-    def draw(self) -> None:  # pragma: no cover - every view overrides it
-        raise NotImplementedError
+    def draw(self) -> None:
+        """Fill the view from the app's state (each view class defines its own)."""
 
     def focus_target(self):
         return self
